@@ -1,0 +1,66 @@
+// The only surface rules import: the rule definition types, the context a rule reports through, and the
+// semantic model's query types. Rules do no IO and know nothing of LSP or the CLI.
+import type { SyntaxNode } from '../parse/syntax';
+import type { Semantics } from '../semantic/queries';
+import type { Figure, Fix, FixSafety, RelatedLocation, TextEdit } from './finding';
+import type { RuleMeta } from './rule-meta';
+
+export type { SyntaxNode } from '../parse/syntax';
+export type { Binding, ClassInfo, FunctionInfo, Scope } from '../semantic/module';
+export { unwrapParens } from '../semantic/module';
+export type { Callee, Origin, ResolvedSymbol, Semantics, ValueType } from '../semantic/queries';
+export { MODULE_BASES } from '../semantic/queries';
+export type { ConstantValue } from '../semantic/values';
+export { formatNumber } from '../semantic/values';
+export type { Figure, Fix, FixSafety, RelatedLocation, TextEdit } from './finding';
+export type { RuleFamily, RuleMeta, RuleStatus } from './rule-meta';
+
+/** What a rule reports: where, which message (with data for its placeholders), the figures and the fixes. */
+export interface ReportOptions {
+  node: SyntaxNode;
+  messageId: string;
+  data?: Record<string, string | number>;
+  figures?: Figure[];
+  fixes?: Fix[];
+  related?: RelatedLocation[];
+}
+
+/** Settings a rule may read. */
+export interface RuleSettings {
+  /** Names that mean "number of training examples" (defaults plus `dataset-size-names`). */
+  datasetSizeNames: readonly string[];
+}
+
+/** What a rule gets while checking one file. */
+export interface RuleContext {
+  /** Semantic queries from the point of view of the checked file (they reach into other workspace files). */
+  readonly sem: Semantics;
+  readonly settings: RuleSettings;
+  /** Reports a finding in the checked file. */
+  report(options: ReportOptions): void;
+  /** An edit that replaces a node's text (in whichever workspace file the node is). */
+  replace(node: SyntaxNode, newText: string): TextEdit;
+  /** An edit that replaces an offset range in the file that holds `inFileOf`. */
+  replaceRange(inFileOf: SyntaxNode, start: number, end: number, newText: string): TextEdit;
+  /** A location in whichever workspace file holds the node, for a finding's related information. */
+  related(node: SyntaxNode, message: string): RelatedLocation;
+}
+
+/** Node listeners keyed by tree-sitter node type; `file:end` runs after the walk. */
+export type RuleListeners = { [nodeType: string]: ((node: SyntaxNode) => void) | undefined } & { 'file:end'?: () => void };
+
+/** A rule: its metadata and a factory of listeners for one file. */
+export interface Rule {
+  meta: RuleMeta;
+  create(context: RuleContext): RuleListeners;
+}
+
+/** Declares a rule (identity function that gives the literal its type). */
+export function defineRule(rule: Rule): Rule {
+  return rule;
+}
+
+/** Builds a fix from edits. */
+export function fix(title: string, safety: FixSafety, edits: TextEdit[]): Fix {
+  return { title, safety, edits };
+}

@@ -1,0 +1,284 @@
+// The workspace index: every Python file and notebook of a project, their module names, who imports whom, and
+// lazily built per-file semantic models, so that a rule can follow an import into another file. Updating one file
+// invalidates only that file's model and tells which files depend on it.
+import * as path from 'node:path';
+import type { Parser } from 'web-tree-sitter';
+import { PythonDocument } from '../parse/document';
+import { type NotebookModel, NotebookError, readNotebook } from '../parse/notebook';
+import type { SyntaxFile, SyntaxNode } from '../parse/syntax';
+import { ModuleAnalysis } from './module';
+
+/** One file of the workspace as the index knows it. */
+export interface WorkspaceFile {
+  /** Path as reported in output. */
+  path: string;
+  absPath: string;
+  kind: 'python' | 'notebook';
+  /** Raw text as read (notebook JSON for notebooks). */
+  raw: string;
+  /** Dotted module name derived from the path relative to the workspace root. */
+  moduleName: string;
+  isPackage: boolean;
+  /** Content version; bumped on every update. */
+  version: number;
+  /** Module names this file imports, recorded at its first analysis (kept when the analysis is evicted). */
+  importedModules: string[] | null;
+}
+
+/** A file's parsed and analysed state (built on first use). */
+export interface FileAnalysis {
+  file: WorkspaceFile;
+  /** The analysed Python text (the virtual module for notebooks). */
+  text: string;
+  notebook: NotebookModel | null;
+  syntax: SyntaxFile;
+  module: ModuleAnalysis;
+  /** Why the file could not be analysed, when it could not (then syntax/module describe an empty module). */
+  unreadable: string | null;
+}
+
+/** Provides the Python parser (shared; initialised by the caller). */
+export type ParserProvider = () => Parser;
+
+/** Bound on the number of analysed files kept in memory at once (others are re-analysed on demand). */
+const DEFAULT_CACHE_LIMIT = 400;
+
+/** All files of one workspace and their analyses. */
+export class Workspace {
+  private readonly files = new Map<string, WorkspaceFile>();
+  private readonly byModuleName = new Map<string, string[]>();
+  private readonly analyses = new Map<string, FileAnalysis>();
+  private readonly moduleOwner = new WeakMap<SyntaxFile, FileAnalysis>();
+  /** Memo tables that rules and queries fill; cleared whenever any file changes. */
+  readonly memo = new Map<string, Map<unknown, unknown>>();
+  private versionCounter = 0;
+
+  constructor(
+    /** Absolute root directory; module names are computed relative to it. */
+    readonly root: string,
+    private readonly parser: ParserProvider,
+    private readonly cacheLimit = DEFAULT_CACHE_LIMIT,
+  ) {}
+
+  /**
+   * Adds or replaces a file; returns false when the text is unchanged. Callers that need to know which files to
+   * re-check ask `dependentsOf` before and after the update (the import graph may change with the edit).
+   */
+  setFile(input: { path: string; absPath: string; text: string }): boolean {
+    const absPath = path.resolve(input.absPath);
+    const existing = this.files.get(absPath);
+    if (existing && existing.raw === input.text && existing.path === input.path) return false;
+    if (existing) this.unregisterModuleName(existing);
+    const kind = absPath.endsWith('.ipynb') ? 'notebook' : 'python';
+    const { moduleName, isPackage } = moduleNameFor(this.root, absPath);
+    const file: WorkspaceFile = { path: input.path, absPath, kind, raw: input.text, moduleName, isPackage, version: ++this.versionCounter, importedModules: null };
+    this.files.set(absPath, file);
+    this.registerModuleName(file);
+    this.analyses.delete(absPath);
+    this.memo.clear();
+    return true;
+  }
+
+  /** Removes a file; returns false when it was not known. */
+  removeFile(absPathIn: string): boolean {
+    const absPath = path.resolve(absPathIn);
+    const existing = this.files.get(absPath);
+    if (!existing) return false;
+    this.unregisterModuleName(existing);
+    this.files.delete(absPath);
+    this.analyses.delete(absPath);
+    this.memo.clear();
+    return true;
+  }
+
+  /** The file entry for an absolute path. */
+  file(absPath: string): WorkspaceFile | undefined {
+    return this.files.get(path.resolve(absPath));
+  }
+
+  /** All files, in path order. */
+  allFiles(): WorkspaceFile[] {
+    return [...this.files.values()].sort((a, b) => (a.absPath < b.absPath ? -1 : a.absPath > b.absPath ? 1 : 0));
+  }
+
+  /** The analysis of a file, building it when needed. */
+  analysis(absPathIn: string): FileAnalysis | null {
+    const absPath = path.resolve(absPathIn);
+    const cached = this.analyses.get(absPath);
+    if (cached) {
+      // Refresh its place in the LRU order.
+      this.analyses.delete(absPath);
+      this.analyses.set(absPath, cached);
+      return cached;
+    }
+    const file = this.files.get(absPath);
+    if (!file) return null;
+    const analysis = this.analyse(file);
+    this.analyses.set(absPath, analysis);
+    this.moduleOwner.set(analysis.syntax, analysis);
+    while (this.analyses.size > this.cacheLimit) {
+      const oldest = this.analyses.keys().next().value as string;
+      this.analyses.delete(oldest);
+    }
+    return analysis;
+  }
+
+  /** The analysis a syntax node belongs to. */
+  analysisOfNode(node: SyntaxNode): FileAnalysis | undefined {
+    return this.moduleOwner.get(node.file);
+  }
+
+  /**
+   * The workspace module with a dotted name, as seen from an importing file: a sibling module in the importer's
+   * folder first, then the full name from the root, then a unique suffix match (scripts run from a subfolder).
+   */
+  moduleByName(name: string, fromAbsPath?: string): FileAnalysis | null {
+    const file = this.moduleFileByName(name, fromAbsPath);
+    return file ? this.analysis(file) : null;
+  }
+
+  /** Absolute path of the workspace module with a dotted name (see moduleByName), without analysing it. */
+  moduleFileByName(name: string, fromAbsPath?: string): string | null {
+    if (fromAbsPath) {
+      const dir = path.dirname(fromAbsPath);
+      const rel = name.split('.');
+      for (const candidate of [path.join(dir, ...rel) + '.py', path.join(dir, ...rel, '__init__.py')]) {
+        if (this.files.has(candidate)) return candidate;
+      }
+    }
+    const owners = this.byModuleName.get(name);
+    if (!owners || owners.length === 0) return null;
+    if (owners.length === 1) return owners[0]!;
+    // Prefer the exact full name, then the candidate closest to the importer.
+    const exact = owners.find((p) => this.files.get(p)?.moduleName === name);
+    if (exact) return exact;
+    if (fromAbsPath) {
+      const sorted = [...owners].sort((a, b) => commonPrefixLength(b, fromAbsPath) - commonPrefixLength(a, fromAbsPath));
+      return sorted[0]!;
+    }
+    return null;
+  }
+
+  /** Files that import this one, directly or through other workspace files (the file itself included). */
+  dependentsOf(absPathIn: string): Set<string> {
+    const absPath = path.resolve(absPathIn);
+    const out = new Set<string>([absPath]);
+    const queue = [absPath];
+    const importers = this.importersIndex();
+    while (queue.length) {
+      const current = queue.pop()!;
+      for (const importer of importers.get(current) ?? []) {
+        if (!out.has(importer)) {
+          out.add(importer);
+          queue.push(importer);
+        }
+      }
+    }
+    return out;
+  }
+
+  /** Workspace files a file imports (resolved). */
+  importsOf(absPathIn: string): string[] {
+    const absPath = path.resolve(absPathIn);
+    const file = this.files.get(absPath);
+    if (!file) return [];
+    const names = file.importedModules ?? (this.analysis(absPath) ? file.importedModules ?? [] : []);
+    const out = new Set<string>();
+    for (const name of names) {
+      const parts = name.split('.');
+      for (let i = parts.length; i > 0; i--) {
+        const target = this.moduleFileByName(parts.slice(0, i).join('.'), absPath);
+        if (target && target !== absPath) {
+          out.add(target);
+          break;
+        }
+      }
+    }
+    return [...out];
+  }
+
+  private importersIndex(): Map<string, string[]> {
+    const key = 'workspace:importers';
+    const cached = this.memo.get(key)?.get(key) as Map<string, string[]> | undefined;
+    if (cached) return cached;
+    const index = new Map<string, string[]>();
+    for (const file of this.files.values()) {
+      for (const target of this.importsOf(file.absPath)) {
+        const list = index.get(target) ?? [];
+        list.push(file.absPath);
+        index.set(target, list);
+      }
+    }
+    this.memoTable(key).set(key, index);
+    return index;
+  }
+
+  /** A memo table for one kind of derived fact; cleared whenever a file changes. */
+  memoTable<K, V>(name: string): Map<K, V> {
+    let table = this.memo.get(name);
+    if (!table) {
+      table = new Map();
+      this.memo.set(name, table);
+    }
+    return table as Map<K, V>;
+  }
+
+  private analyse(file: WorkspaceFile): FileAnalysis {
+    let text = file.raw;
+    let notebook: NotebookModel | null = null;
+    let unreadable: string | null = null;
+    if (file.kind === 'notebook') {
+      try {
+        notebook = readNotebook(file.raw);
+        text = notebook.text;
+      } catch (error) {
+        unreadable = error instanceof NotebookError ? error.message : `could not read the notebook: ${(error as Error).message}`;
+        text = '';
+      }
+    }
+    const document = PythonDocument.parse(this.parser(), text);
+    const module = new ModuleAnalysis(document.syntax, file.moduleName, file.isPackage);
+    file.importedModules = [...module.importedModules];
+    return { file, text, notebook, syntax: document.syntax, module, unreadable };
+  }
+
+  private registerModuleName(file: WorkspaceFile): void {
+    const parts = file.moduleName.split('.');
+    for (let i = 0; i < parts.length; i++) {
+      const suffix = parts.slice(i).join('.');
+      const list = this.byModuleName.get(suffix) ?? [];
+      list.push(file.absPath);
+      this.byModuleName.set(suffix, list);
+    }
+  }
+
+  private unregisterModuleName(file: WorkspaceFile): void {
+    const parts = file.moduleName.split('.');
+    for (let i = 0; i < parts.length; i++) {
+      const suffix = parts.slice(i).join('.');
+      const list = this.byModuleName.get(suffix);
+      if (!list) continue;
+      const next = list.filter((p) => p !== file.absPath);
+      if (next.length) this.byModuleName.set(suffix, next);
+      else this.byModuleName.delete(suffix);
+    }
+  }
+}
+
+/** Dotted module name of a file relative to the root (`riverlab/models.py` → `riverlab.models`). */
+export function moduleNameFor(root: string, absPath: string): { moduleName: string; isPackage: boolean } {
+  let rel = path.relative(root, absPath);
+  if (rel.startsWith('..') || path.isAbsolute(rel)) rel = path.basename(absPath);
+  const parts = rel.split(/[\\/]+/);
+  const last = parts.pop()!.replace(/\.(py|ipynb)$/, '');
+  const isPackage = last === '__init__';
+  if (!isPackage) parts.push(last);
+  const clean = parts.map((p) => p.replace(/[^A-Za-z0-9_]/g, '_'));
+  return { moduleName: clean.join('.') || '__main__', isPackage };
+}
+
+function commonPrefixLength(a: string, b: string): number {
+  let i = 0;
+  while (i < a.length && i < b.length && a[i] === b[i]) i++;
+  return i;
+}

@@ -1,0 +1,11 @@
+// Test runner configuration: every suite under tests/ and beside each rule runs against the real components.
+import { defineConfig } from 'vitest/config';
+
+export default defineConfig({
+  test: {
+    include: ['tests/**/*.test.ts'],
+    testTimeout: 60_000,
+    hookTimeout: 120_000,
+    pool: 'forks',
+  },
+});
