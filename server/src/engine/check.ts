@@ -166,7 +166,7 @@ function runRules(workspace: Workspace, analysis: FileAnalysis, settings: Engine
     }
     const seen = new Set<string>();
     for (const f of perRule.get(id) ?? []) {
-      const key = `${f.start}:${f.end}:${f.messageId}`;
+      const key = `${f.start}:${f.end}:${f.messageId}:${f.message}`;
       if (seen.has(key)) continue;
       seen.add(key);
       if (isSuppressed(suppressions, id, lines.lineOf(f.start))) continue;

@@ -110,7 +110,6 @@ export interface AttributeBinding {
   method: FunctionInfo | null;
 }
 
-const SCOPE_NODE_TYPES = new Set(['function_definition', 'class_definition', 'lambda', 'list_comprehension', 'set_comprehension', 'dictionary_comprehension', 'generator_expression']);
 const CONDITIONAL_TYPES = new Set(['if_statement', 'elif_clause', 'else_clause', 'for_statement', 'while_statement', 'try_statement', 'except_clause', 'finally_clause', 'match_statement', 'case_clause', 'conditional_expression', 'boolean_operator']);
 const LOOP_TYPES = new Set(['for_statement', 'while_statement']);
 
@@ -311,6 +310,9 @@ export class ModuleAnalysis {
           }
           break;
         }
+        case 'call':
+          this.bindRegisteredAttribute(node);
+          break;
         case 'global_statement':
         case 'nonlocal_statement': {
           const scope = this.scopeOf(node);
@@ -517,6 +519,26 @@ export class ModuleAnalysis {
       default:
         return;
     }
+  }
+
+  /** Records `self.register_parameter('name', value)` / `self.register_buffer('name', value)` as attribute bindings. */
+  private bindRegisteredAttribute(call: SyntaxNode): void {
+    const fn = call.child('function');
+    if (fn?.type !== 'attribute') return;
+    const method = fn.child('attribute')?.text;
+    if (method !== 'register_parameter' && method !== 'register_buffer') return;
+    const object = fn.child('object');
+    const args = call.child('arguments')?.namedChildren ?? [];
+    const nameArg = args[0];
+    if (!object || object.type !== 'identifier' || nameArg?.type !== 'string') return;
+    const owner = this.enclosingFunction(call);
+    if (!owner?.owner || owner.params[0]?.name !== object.text) return;
+    const name = nameArg.children.filter((c) => c.type === 'string_content').map((c) => c.text).join('');
+    if (!/^[A-Za-z_]\w*$/.test(name)) return;
+    const value = args[1] && args[1].type !== 'keyword_argument' ? args[1] : (args.find((a) => a.type === 'keyword_argument' && /^(param|tensor)$/.test(a.child('name')?.text ?? ''))?.child('value') ?? null);
+    const list = owner.owner.attributes.get(name) ?? [];
+    list.push({ name, target: nameArg, value: method === 'register_buffer' ? null : value, method: owner });
+    owner.owner.attributes.set(name, list);
   }
 
   /** Records `self.name = value` on the enclosing class (in methods) when the object is the method's first parameter. */

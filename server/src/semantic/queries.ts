@@ -25,8 +25,10 @@ export interface Callee {
   method: string | null;
   /** The object a method is called on. */
   receiver: SyntaxNode | null;
-  /** The workspace function or class called, when it is one. */
+  /** The workspace function or class called, when it is one (methods resolved through the receiver's class). */
   symbol: ResolvedSymbol | null;
+  /** True when the call passes the receiver as the first parameter (a method called on an instance). */
+  boundMethod: boolean;
 }
 
 /** An expression a value may come from, with the module that holds it. */
@@ -134,17 +136,36 @@ export class Semantics {
   /** What a call calls. */
   callee(call: SyntaxNode): Callee {
     const fn = call.child('function');
-    if (!fn) return { qualifiedName: null, method: null, receiver: null, symbol: null };
+    if (!fn) return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
+    const memo = this.workspace.memoTable<SyntaxNode, Callee>('callee');
+    const cached = memo.get(call);
+    if (cached) return cached;
+    const result = this.calleeUncached(call, fn);
+    memo.set(call, result);
+    return result;
+  }
+
+  private calleeUncached(call: SyntaxNode, fn: SyntaxNode): Callee {
     const qualifiedName = this.qualifiedName(fn);
     if (qualifiedName) {
       const symbol = this.symbolOfQualifiedName(qualifiedName, this.fileOf(call).file.absPath);
-      return { qualifiedName: symbol && symbol.kind !== 'external' ? qualifiedNameOfSymbol(symbol) : qualifiedName, method: null, receiver: null, symbol };
+      return { qualifiedName: symbol && symbol.kind !== 'external' ? qualifiedNameOfSymbol(symbol) : qualifiedName, method: null, receiver: null, symbol, boundMethod: false };
     }
     const f = unwrapParens(fn);
     if (f.type === 'attribute') {
-      return { qualifiedName: null, method: f.child('attribute')?.text ?? null, receiver: f.child('object'), symbol: null };
+      const method = f.child('attribute')?.text ?? null;
+      const receiver = f.child('object');
+      let symbol: ResolvedSymbol | null = null;
+      if (method && receiver) {
+        const type = this.typeOf(receiver);
+        if (type?.kind === 'instance') {
+          const m = this.findMethod(type.cls, method);
+          if (m) symbol = { kind: 'function', fn: m };
+        }
+      }
+      return { qualifiedName: null, method, receiver, symbol, boundMethod: symbol !== null };
     }
-    return { qualifiedName: null, method: null, receiver: null, symbol: null };
+    return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
   }
 
   /**
@@ -336,7 +357,7 @@ export class Semantics {
           const out: Origin[] = [];
           const bindings = this.attributeBindings(type.cls, attr);
           for (const a of bindings) {
-            if (a.value) out.push(...this.origins(a.value, depth + 1, seen).map((o) => (o.node === unwrapParens(a.value!) ? { ...o, attribute: { cls: type.cls, name: attr } } : o)));
+            if (a.value) out.push(...this.origins(a.value, depth + 1, seen).map((o) => (o.node === unwrapParens(a.value!) ? { ...o, attribute: { cls: a.cls, name: attr } } : o)));
           }
           const getter = this.findMethod(type.cls, attr);
           if (getter && isProperty(getter)) for (const r of getter.returns) out.push(...this.origins(r, depth + 1, seen));

@@ -1,0 +1,25 @@
+// The rule registry: one import per rule folder, alphabetical (a test checks that the folders and this list agree).
+import type { Rule } from '../server/src/engine/api';
+import unconstrainedStdDoc from './unconstrained-std/doc.md?raw';
+import { rule as unconstrainedStd } from './unconstrained-std/rule';
+import unexplainedAllowDoc from './unexplained-allow/doc.md?raw';
+import { rule as unexplainedAllow, setKnownRuleIds } from './unexplained-allow/rule';
+
+/** A rule with its bundled page. */
+export interface RegisteredRule extends Rule {
+  /** The rule page (Markdown), bundled so hovers and `noisewise explain` work offline. */
+  doc: string;
+}
+
+/** Every rule, sorted by id. */
+export const allRules: RegisteredRule[] = [
+  { ...unconstrainedStd, doc: unconstrainedStdDoc },
+  { ...unexplainedAllow, doc: unexplainedAllowDoc },
+];
+
+/** The rule with an id, if there is one. */
+export function findRule(id: string): RegisteredRule | undefined {
+  return allRules.find((r) => r.meta.id === id);
+}
+
+setKnownRuleIds(allRules.map((r) => r.meta.id));
