@@ -360,7 +360,7 @@ export class Semantics {
             if (a.value) out.push(...this.origins(a.value, depth + 1, seen).map((o) => (o.node === unwrapParens(a.value!) ? { ...o, attribute: { cls: a.cls, name: attr } } : o)));
           }
           const getter = this.findMethod(type.cls, attr);
-          if (getter && isProperty(getter)) for (const r of getter.returns) out.push(...this.origins(r, depth + 1, seen));
+          if (getter && this.isProperty(getter)) for (const r of getter.returns) out.push(...this.origins(r, depth + 1, seen));
           if (out.length) return out;
         }
       }
@@ -467,6 +467,15 @@ export class Semantics {
     });
   }
 
+  /** True when a method is a `@property` (or `functools.cached_property`) getter, resolved through imports. */
+  isProperty(fn: FunctionInfo): boolean {
+    return fn.decorators.some((d) => {
+      const expr = d.namedChildren[0];
+      const name = expr ? this.qualifiedName(expr) : null;
+      return name === 'builtins.property' || name === 'functools.cached_property';
+    });
+  }
+
   /** The positional argument at an index, or the keyword argument with a name (keyword wins). */
   argument(call: SyntaxNode, index: number, keyword?: string): SyntaxNode | null {
     const args = call.child('arguments');
@@ -502,9 +511,5 @@ export function qualifiedNameOfSymbol(symbol: ResolvedSymbol): string {
   }
 }
 
-/** True when a method is a `@property` getter. */
-export function isProperty(fn: FunctionInfo): boolean {
-  return fn.decorators.some((d) => /^@\s*(property|functools\.cached_property|cached_property)\s*$/.test(d.text.trim()));
-}
 
 const BUILTINS = new Set(['len', 'abs', 'min', 'max', 'sum', 'float', 'int', 'range', 'print', 'list', 'dict', 'tuple', 'zip', 'enumerate', 'map', 'iter', 'next', 'round', 'pow', 'isinstance', 'super', 'getattr', 'setattr', 'sorted', 'reversed', 'any', 'all', 'property', 'staticmethod', 'classmethod']);
