@@ -94,13 +94,39 @@ export const rule = defineRule({
         messageId,
         data: { name: source.name, ...data },
         figures: figuresFor(sem, source),
-        fixes: source.attribute ? fixesFor(context, source) : [],
+        fixes: source.attribute ? cachedFixes(source) : [],
         related: [context.related(source.declaration, `\`${source.name}\` is declared here as a trainable tensor`)],
       });
     }
 
+    /** Fixes depend only on the declaration (every finding of one parameter gets the same rewrite). */
+    const fixMemo = sem.workspace.memoTable<SyntaxNode, Fix[]>('unconstrained-std:fixes');
+    function cachedFixes(source: TrainableSource): Fix[] {
+      let fixes = fixMemo.get(source.declaration);
+      if (!fixes) {
+        fixes = fixesFor(context, source);
+        fixMemo.set(source.declaration, fixes);
+      }
+      return fixes;
+    }
+
+    /** Logarithms and squares seen during the walk, per enclosing statement, paired at the end into KL formulas. */
+    const klParts = new Map<SyntaxNode, { logs: SyntaxNode[]; squares: SyntaxNode[] }>();
+    const note = (node: SyntaxNode, kind: 'logs' | 'squares', argument: SyntaxNode) => {
+      const statement = node.closest('expression_statement', 'return_statement');
+      if (!statement) return;
+      let parts = klParts.get(statement);
+      if (!parts) {
+        parts = { logs: [], squares: [] };
+        klParts.set(statement, parts);
+      }
+      parts[kind].push(argument);
+    };
+
     return {
       binary_operator(node) {
+        const squared = squareArgument(sem, node);
+        if (squared) note(node, 'squares', squared);
         if (node.child('operator')?.text !== '*') return;
         const left = node.child('left');
         const right = node.child('right');
@@ -109,6 +135,10 @@ export const rule = defineRule({
         else if (isNoise(sem, left) && !isNoise(sem, right)) check(right, unwrapParens(right), 'noise', {});
       },
       call(node) {
+        const logged = logArgument(sem, node);
+        if (logged) note(node, 'logs', logged);
+        const squared = squareArgument(sem, node);
+        if (squared) note(node, 'squares', squared);
         if (sem.isCallTo(node, NORMAL_LIKE)) {
           const scale = sem.argument(node, 1, 'scale');
           if (scale) check(scale, unwrapParens(scale), 'scale', { distribution: distributionName(sem, node) });
@@ -131,34 +161,23 @@ export const rule = defineRule({
           if (arg) check(arg, unwrapParens(arg), 'argument', { callee: fn.name });
         }
       },
-      expression_statement(node) {
-        checkKl(node);
-      },
-      return_statement(node) {
-        checkKl(node);
+      'file:end'() {
+        // A Gaussian KL formula: the same trainable σ appears as log σ (or log σ²) and as σ² in one statement.
+        for (const parts of klParts.values()) {
+          if (parts.logs.length === 0 || parts.squares.length === 0) continue;
+          const logs = new Map<string, SyntaxNode>();
+          const squares = new Map<string, SyntaxNode>();
+          for (const logged of parts.logs) for (const k of candidateKeys(sem, logged)) if (!logs.has(k.key)) logs.set(k.key, k.node);
+          for (const squared of parts.squares) for (const k of candidateKeys(sem, squared)) if (!squares.has(k.key)) squares.set(k.key, k.node);
+          for (const [key, node] of logs) {
+            const square = squares.get(key);
+            if (!square) continue;
+            const first = square.start < node.start ? square : node;
+            check(first, first, 'kl', {});
+          }
+        }
       },
     };
-
-    /** Finds Gaussian KL formulas (log σ and σ² of the same σ in one statement) and checks that σ. */
-    function checkKl(statement: SyntaxNode): void {
-      const expr = statement.type === 'expression_statement' ? statement.namedChildren[0] : statement.namedChildren[0];
-      if (!expr) return;
-      const value = expr.type === 'assignment' || expr.type === 'augmented_assignment' ? expr.child('right') : expr;
-      if (!value) return;
-      const logs = new Map<string, SyntaxNode>();
-      const squares = new Map<string, SyntaxNode>();
-      for (const n of descendants(value)) {
-        const logged = logArgument(sem, n);
-        if (logged) for (const key of candidateKeys(sem, logged)) if (!logs.has(key.key)) logs.set(key.key, key.node);
-        const squared = squareArgument(sem, n);
-        if (squared) for (const key of candidateKeys(sem, squared)) if (!squares.has(key.key)) squares.set(key.key, key.node);
-      }
-      for (const [key, node] of logs) {
-        if (!squares.has(key)) continue;
-        const first = squares.get(key)!.start < node.start ? squares.get(key)! : node;
-        check(first, first, 'kl', {});
-      }
-    }
   },
 });
 

@@ -74,26 +74,39 @@ const OPERATOR_PARENTS = new Set(['binary_operator', 'augmented_assignment', 'un
  */
 export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
   const file = new SyntaxFile(text);
+  const language = tree.language;
+  const types = language.types;
   const cursor = tree.walk();
+  // NOTE: every cursor getter is a call into WASM, so the walk reads as little as it can: named-ness is cached per
+  // symbol, and punctuation (anonymous nodes outside operator positions) is skipped after reading only its symbol.
   try {
-    const stack: SyntaxNode[] = [];
+    const stack: (SyntaxNode | null)[] = [];
     let parent: SyntaxNode | null = null;
     for (;;) {
-      const named = cursor.nodeIsNamed;
-      const type = cursor.nodeType;
+      const typeId = cursor.nodeTypeId;
+      let named = namedBySymbol[typeId];
+      if (named === undefined) {
+        named = cursor.nodeIsNamed;
+        namedBySymbol[typeId] = named;
+      }
       let created: SyntaxNode | null = null;
-      const field = cursor.currentFieldName;
-      if (named || (parent !== null && (field !== null || OPERATOR_PARENTS.has(parent.type)) && type !== '(' && type !== ')')) {
-        const missing = cursor.nodeIsMissing;
-        created = new SyntaxNode(file.nodes.length, type, cursor.startIndex, cursor.endIndex, parent, field ?? (named ? null : 'operator'), file, missing);
-        file.nodes.push(created);
-        if (parent) parent.children.push(created);
-        else file.root = created;
-        if (type === 'ERROR' || missing) file.errors.push(created);
+      if (named || (parent !== null && OPERATOR_PARENTS.has(parent.type))) {
+        const type = types[typeId] ?? 'ERROR';
+        if (named || (type !== '(' && type !== ')')) {
+          const field = cursor.currentFieldName;
+          const start = cursor.startIndex;
+          const end = cursor.endIndex;
+          const missing: boolean = start === end && parent !== null && cursor.nodeIsMissing;
+          created = new SyntaxNode(file.nodes.length, type, start, end, parent, field ?? (named ? null : 'operator'), file, missing);
+          file.nodes.push(created);
+          if (parent) parent.children.push(created);
+          else file.root = created;
+          if (type === 'ERROR' || missing) file.errors.push(created);
+        }
       }
       // Descend only into named nodes; anonymous tokens have nothing inside that we keep.
       if (named && cursor.gotoFirstChild()) {
-        stack.push(parent as SyntaxNode);
+        stack.push(parent);
         parent = created ?? parent;
         continue;
       }
@@ -107,3 +120,6 @@ export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
     cursor.delete();
   }
 }
+
+/** Whether a grammar symbol is a named node type, learned from the cursor the first time a symbol is seen. */
+const namedBySymbol: (boolean | undefined)[] = [];
