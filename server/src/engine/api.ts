@@ -2,7 +2,7 @@
 // semantic model's query types. Rules do no IO and know nothing of LSP or the CLI.
 import type { SyntaxNode } from '../parse/syntax';
 import type { Semantics } from '../semantic/queries';
-import type { Figure, Fix, FixSafety, RelatedLocation, TextEdit } from './finding';
+import type { Figure, Fix, FixSafety, RelatedLocation, Severity, TextEdit } from './finding';
 import type { RuleMeta } from './rule-meta';
 
 export type { SyntaxNode } from '../parse/syntax';
@@ -12,7 +12,7 @@ export type { Callee, Origin, ResolvedSymbol, Semantics, ValueType } from '../se
 export { MODULE_BASES } from '../semantic/queries';
 export type { ConstantValue } from '../semantic/values';
 export { formatNumber } from '../semantic/values';
-export type { Figure, Fix, FixSafety, RelatedLocation, TextEdit } from './finding';
+export type { Figure, Fix, FixSafety, RelatedLocation, Severity, TextEdit } from './finding';
 export type { RuleFamily, RuleMeta, RuleStatus } from './rule-meta';
 
 /** What a rule reports: where, which message (with data for its placeholders), the figures and the fixes. */
@@ -23,6 +23,12 @@ export interface ReportOptions {
   figures?: Figure[];
   fixes?: Fix[];
   related?: RelatedLocation[];
+  /**
+   * A lower severity for this finding only (for example a milder form of the mistake). The finding gets the lower
+   * of this and the rule's effective severity, so it never exceeds what the user configured; a rule configured
+   * `off` does not run at all.
+   */
+  severity?: Severity;
 }
 
 /** Settings a rule may read. */

@@ -8,7 +8,7 @@ import type { SyntaxNode } from '../parse/syntax';
 import { Semantics } from '../semantic/queries';
 import { type FileAnalysis, Workspace } from '../semantic/workspace';
 import type { RuleContext, RuleListeners } from './api';
-import type { Finding, Severity, TextEdit } from './finding';
+import { type Finding, type Severity, SEVERITY_RANK, type TextEdit } from './finding';
 import { collectSuppressions, isSuppressed } from './suppress';
 import type { CheckInput, EngineSettings, FileNote, FileReport, RuleSelection } from './types';
 
@@ -97,9 +97,11 @@ function runRules(workspace: Workspace, analysis: FileAnalysis, settings: Engine
         if (template === undefined) throw new Error(`rule ${id} has no message '${options.messageId}'`);
         const message = template.replace(/\{(\w+)\}/g, (m, key: string) => (options.data && key in options.data ? String(options.data[key]) : m));
         if (options.node.file !== analysis.syntax) throw new Error(`rule ${id} reported a node of another file`);
+        // A per-finding severity may only lower the rule's effective (configured or default) severity.
+        const findingSeverity = options.severity !== undefined && SEVERITY_RANK[options.severity] < SEVERITY_RANK[severity] ? options.severity : severity;
         found.push({
           rule: id,
-          severity,
+          severity: findingSeverity,
           path: analysis.file.path,
           start: options.node.start,
           end: options.node.end,

@@ -58,6 +58,8 @@ export class PythonDocument {
     }
     const newTree = parser.parse(text, tree ?? undefined);
     tree?.delete();
+    // This document no longer owns a tree: a later dispose() or edit() on it must not touch the freed one.
+    this.tree = null;
     if (!newTree) throw new Error('noisewise: the parser returned no tree');
     return new PythonDocument(text, newTree, toSyntaxFile(newTree, text));
   }

@@ -77,6 +77,8 @@ export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
   const language = tree.language;
   const types = language.types;
   const cursor = tree.walk();
+  // Read once: only a tree with errors can hold MISSING punctuation, which the walk below must still record.
+  const hasError = tree.rootNode.hasError;
   // NOTE: every cursor getter is a call into WASM, so the walk reads as little as it can: named-ness is cached per
   // symbol, and punctuation (anonymous nodes outside operator positions) is skipped after reading only its symbol.
   try {
@@ -103,6 +105,12 @@ export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
           else file.root = created;
           if (type === 'ERROR' || missing) file.errors.push(created);
         }
+      }
+      if (created === null && hasError && parent !== null && cursor.nodeIsMissing) {
+        // A token inserted to recover (MISSING ")") is punctuation and not kept as a node, but it is a parse error:
+        // it goes into `errors` only, with the id the next kept node gets, so that `contains` works on it.
+        const at = cursor.startIndex;
+        file.errors.push(new SyntaxNode(file.nodes.length, types[cursor.nodeTypeId] ?? 'MISSING', at, at, parent, null, file, true));
       }
       // Descend only into named nodes; anonymous tokens have nothing inside that we keep.
       if (named && cursor.gotoFirstChild()) {

@@ -620,7 +620,8 @@ function conditionalChain(node: SyntaxNode, scopeNode: SyntaxNode): SyntaxNode[]
 /**
  * Flow approximation inside one scope: walking back from the use, every binding is kept until one is found
  * whose conditional context encloses the use's (it dominates the use); bindings after the use count only when a
- * loop encloses both.
+ * loop encloses both. A binding takes effect after its value is evaluated (`x = x + 1` reads the earlier `x`), and
+ * a binding made from a nested function (`global`/`nonlocal`) may reach but never dominates.
  */
 function reachingBindings(list: Binding[], use: SyntaxNode): Binding[] {
   if (list.length === 1) return list;
@@ -630,22 +631,41 @@ function reachingBindings(list: Binding[], use: SyntaxNode): Binding[] {
   let dominated = false;
   for (let i = list.length - 1; i >= 0; i--) {
     const b = list[i]!;
-    if (b.node.start >= use.start) {
+    if (bindingPoint(b) > use.start) {
       if (b.kind === 'for' || b.kind === 'with' || b.kind === 'comprehension') {
-        // `for x in f(x)`-style targets bind before the body runs.
-        if (b.node.start <= use.start || (b.value && !b.value.contains(use) && b.node.parent && useInsideStatementOf(b, use))) out.push(b);
-        continue;
+        // A comprehension's element is written before its `for` clause but runs after the target is bound.
+        if (b.node.start === use.start || (b.value && !b.value.contains(use) && b.node.parent && useInsideStatementOf(b, use))) {
+          out.push(b);
+          continue;
+        }
       }
-      const loop = useChain.find((c) => LOOP_TYPES.has(c.type) && c.contains(b.node));
+      // A later binding reaches around a loop, except into a `for` loop's iterable (evaluated once, before the loop).
+      const loop = useChain.find((c) => LOOP_TYPES.has(c.type) && c.contains(b.node) && !(c.type === 'for_statement' && c.child('right')?.contains(use)));
       if (loop) out.push(b);
       continue;
     }
     if (dominated) continue;
     out.push(b);
+    if (insideNestedFunction(b.node, scopeNode)) continue;
     const chain = conditionalChain(b.node, scopeNode);
     if (chain.every((c) => useChain.includes(c))) dominated = true;
   }
   return out.length > 0 ? out.reverse() : list;
+}
+
+/** Offset at which a binding takes effect: after the value it is bound to has been evaluated. */
+function bindingPoint(b: Binding): number {
+  if (b.kind === 'assign' || b.kind === 'augassign' || b.kind === 'walrus' || b.kind === 'with' || b.kind === 'for' || b.kind === 'comprehension') {
+    const value = b.value ?? b.unpack?.from ?? null;
+    if (value) return Math.max(b.node.start, value.end);
+  }
+  return b.node.start;
+}
+
+/** True when a node lies inside a function or lambda nested in the scope node (a `global`/`nonlocal` write). */
+function insideNestedFunction(node: SyntaxNode, scopeNode: SyntaxNode): boolean {
+  for (let n = node.parent; n && n !== scopeNode; n = n.parent) if (n.type === 'function_definition' || n.type === 'lambda') return true;
+  return false;
 }
 
 function useInsideStatementOf(binding: Binding, use: SyntaxNode): boolean {
