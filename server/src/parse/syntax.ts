@@ -1,5 +1,6 @@
 // The engine's own syntax tree: a plain-JavaScript copy of the tree-sitter tree made in one cursor walk, so that
 // analysis never crosses into WASM memory and the tree-sitter tree can be freed (or kept only for re-parsing).
+import * as treeSitter from 'web-tree-sitter';
 import type { Tree } from 'web-tree-sitter';
 
 /** One node of the syntax tree; offsets are UTF-16 code units into the parsed text. */
@@ -68,11 +69,134 @@ export class SyntaxFile {
 /** Node types whose anonymous children are kept because they carry the meaning (the operator). */
 const OPERATOR_PARENTS = new Set(['binary_operator', 'augmented_assignment', 'unary_operator', 'boolean_operator', 'comparison_operator', 'not_operator']);
 
+/** The raw WASM entry points the fast walk calls (exposed by the bundle's build step; see scripts/bundle.mjs). */
+interface WasmInternals {
+  C: {
+    HEAP32: Int32Array;
+    _ts_tree_cursor_current_node_type_id_wasm(tree: number): number;
+    _ts_tree_cursor_current_field_id_wasm(tree: number): number;
+    _ts_tree_cursor_current_node_is_missing_wasm(tree: number): number;
+    _ts_tree_cursor_current_node_is_named_wasm(tree: number): number;
+    _ts_tree_cursor_start_index_wasm(tree: number): number;
+    _ts_tree_cursor_end_index_wasm(tree: number): number;
+    _ts_tree_cursor_goto_first_child_wasm(tree: number): number;
+    _ts_tree_cursor_goto_next_sibling_wasm(tree: number): number;
+    _ts_tree_cursor_goto_parent_wasm(tree: number): number;
+    _ts_language_type_is_named_wasm(language: number, typeId: number): number;
+  };
+  TRANSFER_BUFFER: number;
+}
+
+/** The WASM internals when the loaded web-tree-sitter build exposes them, else null (then the public API is used). */
+function wasmInternals(): WasmInternals | null {
+  const getter = (treeSitter as unknown as { __noisewiseInternals?: () => WasmInternals }).__noisewiseInternals;
+  if (typeof getter !== 'function') return null;
+  const internals = getter();
+  return internals && internals.C && typeof internals.C._ts_tree_cursor_goto_first_child_wasm === 'function' ? internals : null;
+}
+
+/** Whether `toSyntaxFile` uses the direct WASM walk (for tests and the benchmark to report). */
+export function fastWalkAvailable(): boolean {
+  return wasmInternals() !== null;
+}
+
 /**
  * Copies a tree-sitter tree into a SyntaxFile with one iterative cursor walk (no recursion, so nesting depth
  * cannot overflow the stack). Named nodes are kept; anonymous ones only where they carry a field (operators).
+ * Uses the direct WASM walk when available (same result, a fraction of the calls), else the public cursor API.
  */
 export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
+  const internals = wasmInternals();
+  return internals ? toSyntaxFileDirect(tree, text, internals) : toSyntaxFileWithCursor(tree, text);
+}
+
+/**
+ * The same walk as toSyntaxFileWithCursor, but keeping the cursor's state in web-tree-sitter's transfer buffer and
+ * calling the WASM functions directly: the public TreeCursor copies its four handles into and out of WASM memory on
+ * every getter, which costs more than the walk itself.
+ * NOTE: relies on web-tree-sitter 0.27.2's internal calling convention (cursor state in TRANSFER_BUFFER); the
+ * equality of both walks is tested on every fixture, and the version is pinned.
+ */
+export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInternals): SyntaxFile {
+  const { C, TRANSFER_BUFFER } = internals;
+  const file = new SyntaxFile(text);
+  const language = tree.language as unknown as { types: string[]; fields: (string | null)[]; 0: number };
+  const types = language.types;
+  const fields = language.fields;
+  const treeAddress = (tree as unknown as { 0: number })[0];
+  const hasError = tree.rootNode.hasError;
+  const cursor = tree.walk() as unknown as { handles: number[]; delete(): void };
+  const base = TRANSFER_BUFFER >> 2;
+  let heap = C.HEAP32;
+  for (let i = 0; i < 4; i++) heap[base + i] = cursor.handles[i]!;
+  const named = namedTable(C, language[0], types.length);
+  try {
+    const stack: (SyntaxNode | null)[] = [];
+    let parent: SyntaxNode | null = null;
+    for (;;) {
+      const typeId = C._ts_tree_cursor_current_node_type_id_wasm(treeAddress);
+      // ERROR (and any symbol outside the grammar's table) is named or not per node; grammar symbols are fixed.
+      const isNamed = typeId < named.length ? named[typeId] === 1 : C._ts_tree_cursor_current_node_is_named_wasm(treeAddress) === 1;
+      let created: SyntaxNode | null = null;
+      if (isNamed || (parent !== null && OPERATOR_PARENTS.has(parent.type))) {
+        const type = types[typeId] ?? 'ERROR';
+        if (isNamed || (type !== '(' && type !== ')')) {
+          const fieldId = C._ts_tree_cursor_current_field_id_wasm(treeAddress);
+          const field = fieldId ? (fields[fieldId] ?? null) : null;
+          const start = C._ts_tree_cursor_start_index_wasm(treeAddress);
+          const end = C._ts_tree_cursor_end_index_wasm(treeAddress);
+          const missing: boolean = start === end && parent !== null && C._ts_tree_cursor_current_node_is_missing_wasm(treeAddress) === 1;
+          created = new SyntaxNode(file.nodes.length, type, start, end, parent, field ?? (isNamed ? null : 'operator'), file, missing);
+          file.nodes.push(created);
+          if (parent) parent.children.push(created);
+          else file.root = created;
+          if (type === 'ERROR' || missing) file.errors.push(created);
+        }
+      }
+      if (created === null && hasError && parent !== null) {
+        const start = C._ts_tree_cursor_start_index_wasm(treeAddress);
+        if (start === C._ts_tree_cursor_end_index_wasm(treeAddress) && C._ts_tree_cursor_current_node_is_missing_wasm(treeAddress) === 1) {
+          file.errors.push(new SyntaxNode(file.nodes.length, types[typeId] ?? 'MISSING', start, start, parent, null, file, true));
+        }
+      }
+      if (isNamed && C._ts_tree_cursor_goto_first_child_wasm(treeAddress) === 1) {
+        stack.push(parent);
+        parent = created ?? parent;
+        continue;
+      }
+      let done = false;
+      for (;;) {
+        if (C._ts_tree_cursor_goto_next_sibling_wasm(treeAddress) === 1) break;
+        if (C._ts_tree_cursor_goto_parent_wasm(treeAddress) !== 1) {
+          done = true;
+          break;
+        }
+        parent = stack.pop() ?? null;
+      }
+      if (done) return file;
+    }
+  } finally {
+    // The cursor moved inside WASM: copy its state back so that delete() frees what it really holds.
+    heap = C.HEAP32;
+    for (let i = 0; i < 4; i++) cursor.handles[i] = heap[base + i]!;
+    cursor.delete();
+  }
+}
+
+const namedTables = new Map<number, Uint8Array>();
+
+function namedTable(C: WasmInternals['C'], languageAddress: number, count: number): Uint8Array {
+  let table = namedTables.get(languageAddress);
+  if (!table) {
+    table = new Uint8Array(count);
+    for (let i = 0; i < count; i++) table[i] = C._ts_language_type_is_named_wasm(languageAddress, i) === 1 ? 1 : 0;
+    namedTables.set(languageAddress, table);
+  }
+  return table;
+}
+
+/** Copies a tree with the public TreeCursor API (used when the WASM internals are not exposed). */
+export function toSyntaxFileWithCursor(tree: Tree, text: string): SyntaxFile {
   const file = new SyntaxFile(text);
   const language = tree.language;
   const types = language.types;
@@ -86,10 +210,10 @@ export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
     let parent: SyntaxNode | null = null;
     for (;;) {
       const typeId = cursor.nodeTypeId;
-      let named = namedBySymbol[typeId];
+      let named = typeId < types.length ? namedBySymbol[typeId] : undefined;
       if (named === undefined) {
         named = cursor.nodeIsNamed;
-        namedBySymbol[typeId] = named;
+        if (typeId < types.length) namedBySymbol[typeId] = named;
       }
       let created: SyntaxNode | null = null;
       if (named || (parent !== null && OPERATOR_PARENTS.has(parent.type))) {
