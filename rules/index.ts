@@ -1,5 +1,13 @@
 // The rule registry: one import per rule folder, alphabetical (a test checks that the folders and this list agree).
 import type { Rule } from '../server/src/engine/api';
+import elboScaleMismatchDoc from './elbo-scale-mismatch/doc.md?raw';
+import { rule as elboScaleMismatch } from './elbo-scale-mismatch/rule';
+import logitSpaceAverageDoc from './logit-space-average/doc.md?raw';
+import { rule as logitSpaceAverage } from './logit-space-average/rule';
+import noiselessMcEvaluationDoc from './noiseless-mc-evaluation/doc.md?raw';
+import { rule as noiselessMcEvaluation } from './noiseless-mc-evaluation/rule';
+import unboundedNoiseRateDoc from './unbounded-noise-rate/doc.md?raw';
+import { rule as unboundedNoiseRate } from './unbounded-noise-rate/rule';
 import unconstrainedStdDoc from './unconstrained-std/doc.md?raw';
 import { rule as unconstrainedStd } from './unconstrained-std/rule';
 import unexplainedAllowDoc from './unexplained-allow/doc.md?raw';
@@ -13,6 +21,10 @@ export interface RegisteredRule extends Rule {
 
 /** Every rule, sorted by id. */
 export const allRules: RegisteredRule[] = [
+  { ...elboScaleMismatch, doc: elboScaleMismatchDoc },
+  { ...logitSpaceAverage, doc: logitSpaceAverageDoc },
+  { ...noiselessMcEvaluation, doc: noiselessMcEvaluationDoc },
+  { ...unboundedNoiseRate, doc: unboundedNoiseRateDoc },
   { ...unconstrainedStd, doc: unconstrainedStdDoc },
   { ...unexplainedAllow, doc: unexplainedAllowDoc },
 ];

@@ -49,6 +49,8 @@ export class Workspace {
   private readonly byModuleName = new Map<string, string[]>();
   private readonly analyses = new Map<string, FileAnalysis>();
   private readonly moduleOwner = new WeakMap<SyntaxFile, FileAnalysis>();
+  /** Syntax trees handed in by `setFile({ parsed })`, reused by `analyse` while they match the file's text. */
+  private readonly preParsed = new Map<string, SyntaxFile | (() => SyntaxFile)>();
   /** Memo tables that rules and queries fill; cleared whenever any file changes. */
   readonly memo = new Map<string, Map<unknown, unknown>>();
   private versionCounter = 0;
@@ -63,11 +65,20 @@ export class Workspace {
   /**
    * Adds or replaces a file; returns false when the text is unchanged. Callers that need to know which files to
    * re-check ask `dependentsOf` before and after the update (the import graph may change with the edit).
+   * `parsed` is an optional syntax tree the caller already holds for the analysed text (the language server
+   * re-parses open documents incrementally), or a function that returns it when the analysis is built; it is used
+   * instead of a fresh parse when its text is exactly the analysed text (the file itself, or the notebook's virtual
+   * module), and ignored otherwise.
    */
-  setFile(input: { path: string; absPath: string; text: string }): boolean {
+  setFile(input: { path: string; absPath: string; text: string; parsed?: SyntaxFile | (() => SyntaxFile) }): boolean {
     const absPath = path.resolve(input.absPath);
     const existing = this.files.get(absPath);
-    if (existing && existing.raw === input.text && existing.path === input.path) return false;
+    if (existing && existing.raw === input.text && existing.path === input.path) {
+      if (input.parsed) this.preParsed.set(absPath, input.parsed);
+      return false;
+    }
+    if (input.parsed) this.preParsed.set(absPath, input.parsed);
+    else this.preParsed.delete(absPath);
     if (existing) this.unregisterModuleName(existing);
     const kind = absPath.endsWith('.ipynb') ? 'notebook' : 'python';
     const { moduleName, isPackage } = moduleNameFor(this.root, absPath);
@@ -87,6 +98,7 @@ export class Workspace {
     this.unregisterModuleName(existing);
     this.files.delete(absPath);
     this.analyses.delete(absPath);
+    this.preParsed.delete(absPath);
     this.memo.clear();
     return true;
   }
@@ -236,10 +248,12 @@ export class Workspace {
         text = '';
       }
     }
-    const document = PythonDocument.parse(this.parser(), text);
-    const module = new ModuleAnalysis(document.syntax, file.moduleName, file.isPackage);
+    const handed = this.preParsed.get(file.absPath);
+    const parsed = typeof handed === 'function' ? handed() : handed;
+    const syntax = parsed && parsed.text === text ? parsed : PythonDocument.parse(this.parser(), text).syntax;
+    const module = new ModuleAnalysis(syntax, file.moduleName, file.isPackage);
     file.importedModules = [...module.importedModules];
-    return { file, text, notebook, syntax: document.syntax, module, unreadable };
+    return { file, text, notebook, syntax, module, unreadable };
   }
 
   private registerModuleName(file: WorkspaceFile): void {

@@ -1,0 +1,1 @@
+# Leaf-spectrum classifier package (PyTorch port).

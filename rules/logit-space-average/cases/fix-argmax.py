@@ -1,0 +1,21 @@
+"""MC vote of the pump-bearing classifier."""
+from __future__ import annotations
+
+import torch
+from torch import nn
+
+
+class PumpFaultNet(nn.Module):
+    def __init__(self, n_bands=16, n_faults=5):
+        super().__init__()
+        self.body = nn.Sequential(nn.Linear(n_bands, 32), nn.ReLU(), nn.Dropout(0.3))
+        self.head = nn.Linear(32, n_faults)
+
+    def forward(self, x):
+        return self.head(self.body(x))
+
+
+def mc_vote(model: PumpFaultNet, x, n_samples=20):
+    logits = torch.stack([model(x) for _ in range(n_samples)])
+    mean_logits = logits.mean(dim=0)
+    return mean_logits.argmax(dim=-1)

@@ -1,0 +1,1 @@
+# Pump-bearing fault models: a small deep ensemble of classifiers.

@@ -1,0 +1,10 @@
+# Predictive spread of the fault probabilities, aggregated with numpy.
+import numpy as np
+
+from loading import load_model
+
+
+def spread(weights, x_test, n_samples=40):
+    model = load_model(weights)
+    draws = np.stack([model(x_test).softmax(-1).detach().numpy() for _ in range(n_samples)])
+    return draws.std(axis=0)
