@@ -38,6 +38,7 @@ export const COMMANDS: ReadonlyArray<[name: string, summary: string]> = [
   ['check', 'Check Python files and notebooks (default path: the current folder).'],
   ['rules', 'List every rule with its family, default severity and fix availability.'],
   ['explain', 'Print the page of one rule.'],
+  ['server', 'Run the language server over standard input and output (`noisewise server --stdio`).'],
 ];
 
 /** Reads the value of an option given as `--name value` or `--name=value`. */
@@ -80,7 +81,8 @@ export function parseArgs(argv: string[]): ParsedCommand {
       return parseRules(rest);
     case 'explain':
       return parseExplain(rest);
-    // `server --stdio` (the language server) is registered here once server/src/lsp exists; until then it is unknown.
+    // `server` never reaches this parser: main.ts hands it to the language server before parsing, because from then
+    // on standard output belongs to the protocol.
     default:
       if (first.startsWith('-')) throw new UsageError(`unknown option ${first} (options go after the command)`);
       throw new UsageError(`unknown command "${first}"`);

@@ -6,7 +6,7 @@ import { processIo } from './io';
 import { runCli } from './run';
 
 // `noisewise server --stdio` (the language server) is dispatched here, before the CLI's argument parser, because
-// from then on standard output belongs to the protocol. TODO(#5): list it in the CLI's help (cli/args.ts).
+// from then on standard output belongs to the protocol; the help lists it with the other commands (cli/args.ts).
 
 // A reader that closes the pipe early (`noisewise check | head`) is not an error.
 process.stdout.on('error', (error: NodeJS.ErrnoException) => {
