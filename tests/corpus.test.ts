@@ -14,6 +14,12 @@ interface Expected {
   cell?: number;
 }
 
+/** Known, explained gaps of a rule on its corpus (each with its cause and the issue that tracks it). */
+interface KnownGaps {
+  falsePositives: { key: string; cause: string }[];
+  falseNegatives: { key: string; cause: string }[];
+}
+
 const key = (e: Expected) => `${e.rule} ${e.path}${e.cell !== undefined ? `#${e.cell}` : ''}:${e.line}`;
 
 /** Runs the engine on a folder and scores its findings (for the given rules) against an expected list. */
@@ -55,7 +61,14 @@ describe('evaluation corpora', () => {
       const result = await score(folder, expected, [rule], (p) => p.startsWith('ambiguous/'));
       // Printed so that a run shows the figures, not only pass/fail.
       process.stdout.write(`corpus ${rule}: precision ${result.precision.toFixed(3)}, recall ${result.recall.toFixed(3)} over ${result.expected} expected findings\n`);
-      expect({ falsePositives: result.falsePositives, falseNegatives: result.falseNegatives }).toEqual({ falsePositives: [], falseNegatives: [] });
+      // Misses and false alarms not fixed yet are listed with their cause in known-gaps.json; the test fails on any
+      // new one and on any listed one that no longer happens (then the list must shrink), so the list stays true.
+      const gapsFile = path.join(folder, 'known-gaps.json');
+      const gaps = fs.existsSync(gapsFile) ? (JSON.parse(fs.readFileSync(gapsFile, 'utf8')) as KnownGaps) : { falsePositives: [], falseNegatives: [] };
+      expect({ falsePositives: result.falsePositives, falseNegatives: result.falseNegatives }).toEqual({
+        falsePositives: gaps.falsePositives.map((g) => g.key).sort(),
+        falseNegatives: gaps.falseNegatives.map((g) => g.key).sort(),
+      });
     });
   }
 });

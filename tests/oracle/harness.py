@@ -14,6 +14,7 @@ Adding a rule's scenarios: write a function ``def my_scenario(job, params) -> di
 """
 
 import contextlib
+import copy
 import importlib.util
 import json
 import math
@@ -549,6 +550,414 @@ def measure_elbo_step(job, which, run):
 
 
 # ---------------------------------------------------------------------------------------------------------------
+# unbounded-noise-rate: the sign of the single-sample gradient through multiplicative noise, and the noise's variance.
+
+
+def standard_normal_cdf(z):
+    """Φ(z) = ½·erfc(−z/√2) from Python's math.erfc: an independent check value for the rule's own normal-cdf.ts."""
+    return 0.5 * math.erfc(-z / math.sqrt(2.0))
+
+
+def set_tensors(module, values, namespace):
+    """Overwrites tensors of a module in place: {attribute: number, or expression evaluated with `module` in scope}."""
+    with torch.no_grad():
+        for name, value in values.items():
+            target = getattr(module, name)
+            v = eval(value, namespace) if isinstance(value, str) else value
+            target.copy_(torch.as_tensor(v, dtype=target.dtype).expand_as(target))
+
+
+def draw_seed(index, which):
+    """A seed of its own for each run and tree, so that the noise draws of different measurements are independent."""
+    return SEED + 1000 * (index + 1) + (500 if which == "fixed" else 0)
+
+
+def build_noise_layer(job, which, run, values):
+    """The run's layer from the original or fixed tree, with its noise tensors set to `values` and `prepare` run."""
+    m = job.load(which, run.get("entry"))
+    torch.manual_seed(SEED)
+    module = eval(run["build"], {"m": m, "torch": torch})
+    namespace = {"m": m, "torch": torch, "math": math, "module": module}
+    set_tensors(module, values, namespace)
+    if run.get("prepare"):
+        exec(run["prepare"], namespace)
+    if run.get("train", True):
+        module.train()
+    return module
+
+
+def gradient_draws(module, run, x, weights, repeats, seed):
+    """Gradients of a loss linear in the layer's output, Σ c·y, with respect to the target (a weight or the input).
+
+    The loss is linear so that ∂L/∂(noisy value) does not depend on the noise draw: the noise then reaches the target's
+    gradient only as the factor the layer multiplies it by. Returns the gradients and outputs of `repeats` fresh draws.
+    """
+    method = getattr(module, run.get("method", "forward"))
+    grads, outputs = [], []
+    for r in range(repeats):
+        torch.manual_seed(seed + r)
+        inp = x.clone().requires_grad_(run["target"] == "input")
+        target = inp if run["target"] == "input" else getattr(module, run["target"])
+        if target is not inp:
+            target.grad = None
+        y = method(inp)
+        (weights * y).sum().backward()
+        grads.append(target.grad.detach().clone().flatten())
+        outputs.append(y.detach().clone())
+    return grads, outputs
+
+
+class NoNoise:
+    """Makes the standard-normal samplers return zeros (ε = 0) while active: the same code with its noise switched off.
+
+    Covers torch.randn_like, torch.randn (also where a fixture imported them by name) and the sampler behind
+    torch.distributions.Normal.rsample. A noise source it misses shows up as a reference gradient that changes with the
+    seed, which the oracle checks is exactly zero.
+    """
+
+    def __enter__(self):
+        import torch.distributions.normal as normal_module
+
+        self.saved = [(torch, "randn_like", torch.randn_like), (torch, "randn", torch.randn), (normal_module, "_standard_normal", normal_module._standard_normal)]
+        originals = {id(torch.randn_like), id(torch.randn)}
+
+        def zeros_like(t, *args, **kwargs):
+            return torch.zeros_like(t, dtype=kwargs.get("dtype"))
+
+        def zeros(*size, **kwargs):
+            return torch.zeros(*size, dtype=kwargs.get("dtype"), device=kwargs.get("device"))
+
+        def standard_normal_zeros(shape, dtype, device):
+            return torch.zeros(shape, dtype=dtype, device=device)
+
+        replacements = {id(torch.randn_like): zeros_like, id(torch.randn): zeros}
+        torch.randn_like = zeros_like
+        torch.randn = zeros
+        normal_module._standard_normal = standard_normal_zeros
+        # Names a fixture imported directly (`from torch import randn_like`).
+        for module in list(sys.modules.values()):
+            path = os.path.abspath(getattr(module, "__file__", None) or "")
+            if not any(path.startswith(r + os.sep) for r in _roots):
+                continue
+            for name, value in list(vars(module).items()):
+                if id(value) in originals:
+                    self.saved.append((module, name, value))
+                    setattr(module, name, replacements[id(value)])
+        return self
+
+    def __exit__(self, *exc):
+        for owner, name, value in reversed(self.saved):
+            setattr(owner, name, value)
+        return False
+
+
+def sign_flip_measurement(job, which, run, noisy, seed):
+    """Sign flips of the target's gradient at the noisy setting against the same code with ε = 0 (no noise)."""
+    module = build_noise_layer(job, which, run, noisy)
+    torch.manual_seed(SEED + 1)
+    x = torch.randn(*run["input"])
+    with torch.no_grad():
+        shape = getattr(module, run.get("method", "forward"))(x).shape
+    weights = torch.randn(shape, generator=torch.Generator().manual_seed(SEED + 5))
+    with NoNoise():
+        # Two reference draws with different seeds: identical, so no noise source is left in the reference.
+        reference = gradient_draws(module, run, x, weights, 1, SEED + 100)[0][0]
+        reference_again = gradient_draws(module, run, x, weights, 1, SEED + 200)[0][0]
+    grads, outputs = gradient_draws(module, run, x, weights, run.get("repeats", 1), seed)
+    usable = reference != 0
+    ref = reference[usable]
+    ratios = torch.cat([(g[usable] / ref).double() for g in grads])
+    flips = torch.cat([(torch.sign(g[usable]) != torch.sign(ref)) for g in grads])
+    stacked = torch.stack(outputs).double()
+    per_element = stacked.var(0).flatten() if len(outputs) > 1 else None
+    return {
+        "draws": int(flips.numel()),
+        "zero_reference": int((~usable).sum()),
+        "flip_rate": number(flips.double().mean()),
+        # The noise factor is the ratio of the noisy gradient to the noiseless one; its variance is the α at work.
+        "factor_mean": number(ratios.mean()),
+        "factor_variance": number(ratios.var()),
+        "max_factor_deviation": number((ratios - 1).abs().max()),
+        "reference_jitter": number((reference_again - reference).abs().max()),
+        # Mean over output elements of the variance across draws, and its standard error (needs two draws or more).
+        "output_variance": number(per_element.mean()) if per_element is not None else None,
+        "output_variance_se": number(per_element.std() / math.sqrt(per_element.numel())) if per_element is not None else None,
+    }
+
+
+def noise_sign_flip(job, params):
+    """For each run: the wrong-sign rate of the target's single-sample gradient and the noise factor's variance.
+
+    params: runs: list of {name, build (expression with `m`), method (default forward), input ([shape]), target
+    ("input" or a tensor attribute such as "theta"), noisy ({attribute: value or expression}: the setting to measure;
+    the reference gradient is the same code at the same setting with ε = 0), fixed_noisy (for the fixed tree, when the
+    fix renamed the tensor), prepare (statements run after setting, e.g. the fixture's own in-place bound),
+    repeats, alphas ({original, fixed}: the α the check expects, for Φ(−1/√α) by math.erfc)}.
+    """
+    out = {}
+    for which in ("original", "fixed"):
+        if which == "fixed" and not job.has_fixed():
+            continue
+        out[which] = {}
+        for index, run in enumerate(params["runs"]):
+            noisy = run.get("fixed_noisy", run["noisy"]) if which == "fixed" else run["noisy"]
+            r = sign_flip_measurement(job, which, run, noisy, draw_seed(index, which))
+            alpha = (run.get("alphas") or {}).get(which)
+            if alpha is not None:
+                r["expected_alpha"] = alpha
+                r["expected_flip_rate"] = standard_normal_cdf(-1 / math.sqrt(alpha)) if alpha > 0 else 0.0
+            out[which][run["name"]] = r
+    out["phi_minus_one"] = standard_normal_cdf(-1.0)
+    return out
+
+
+def noise_variance(job, params):
+    """For each run: the variance of the multiplicative noise factor the layer applies to an all-ones input.
+
+    params: runs: list of {name, build, input ([shape]), values (optional {attribute: value}), prepare (optional)}.
+    """
+    out = {}
+    for which in ("original", "fixed"):
+        if which == "fixed" and not job.has_fixed():
+            continue
+        out[which] = {}
+        for index, run in enumerate(params["runs"]):
+            module = build_noise_layer(job, which, run, run.get("values", {}))
+            torch.manual_seed(draw_seed(index, which))
+            with torch.no_grad():
+                factor = module(torch.ones(*run["input"])).double().flatten()
+            out[which][run["name"]] = {"n": int(factor.numel()), "mean": number(factor.mean()), "variance": number(factor.var())}
+    return out
+
+
+# ---------------------------------------------------------------------------------------------------------------
+# noiseless-mc-evaluation: every forward pass of the model during an MC loop, its mode, and its BatchNorm statistics.
+
+
+def norm_layers(module):
+    """The BatchNorm layers under a module, with their names."""
+    return [(n, s) for n, s in module.named_modules() if isinstance(s, torch.nn.modules.batchnorm._BatchNorm)]
+
+
+def norm_state(module):
+    """Clones of every BatchNorm buffer (running_mean, running_var, num_batches_tracked) under a module."""
+    return {"%s.%s" % (n, b): t.detach().clone() for n, s in norm_layers(module) for b, t in s.named_buffers(recurse=False)}
+
+
+def dropout_layers(module):
+    """The torch.nn dropout layers (Dropout, AlphaDropout, ...) under a module."""
+    return [s for s in module.modules() if isinstance(s, torch.nn.modules.dropout._DropoutNd)]
+
+
+def first_tensor(value):
+    """The output tensor of a forward that may return a tuple."""
+    if isinstance(value, torch.Tensor):
+        return value
+    if isinstance(value, (tuple, list)):
+        return first_tensor(value[0])
+    raise TypeError("the model returned %s" % type(value).__name__)
+
+
+class PassRecorder:
+    """Wraps the forward of the named model classes (workspace classes as they are defined, torch.nn ones directly)
+    and records every outermost call while recording: the model object, its input, output, mode flags and its
+    BatchNorm buffers before and after the call. `model.forward(x)` is recorded as well as `model(x)`."""
+
+    def __init__(self, class_names):
+        self.class_names = set(class_names)
+        self.recording = False
+        self.depth = 0
+        self.calls = []
+        self.restore = []
+        self.saved_init_subclass = None
+
+    def wrap(self, cls):
+        original = cls.__dict__.get("forward")
+        if original is None or getattr(original, "_oracle_wrapped", False):
+            return
+        recorder = self
+
+        def forward(module, *args, **kwargs):
+            if not recorder.recording or recorder.depth > 0:
+                return original(module, *args, **kwargs)
+            before = norm_state(module)
+            in_train = sorted({type(s).__name__ for s in module.modules() if s.training})
+            norm_eval = all(not s.training for _, s in norm_layers(module))
+            recorder.depth += 1
+            try:
+                result = original(module, *args, **kwargs)
+            finally:
+                recorder.depth -= 1
+            recorder.calls.append({
+                "class": type(module).__name__,
+                "module": module,
+                "input": args[0].detach().clone(),
+                "output": first_tensor(result).detach().clone(),
+                "before": before,
+                "after": norm_state(module),
+                "in_train": in_train,
+                "norm_eval": norm_eval,
+            })
+            return result
+
+        forward._oracle_wrapped = True
+        cls.forward = forward
+        self.restore.append((cls, original))
+
+    def __enter__(self):
+        recorder = self
+        for name in self.class_names:
+            if hasattr(torch.nn, name):
+                self.wrap(getattr(torch.nn, name))
+        self.saved_init_subclass = torch.nn.Module.__dict__.get("__init_subclass__")
+
+        def init_subclass(cls, **kwargs):
+            if cls.__name__ in recorder.class_names:
+                recorder.wrap(cls)
+
+        torch.nn.Module.__init_subclass__ = classmethod(init_subclass)
+        return self
+
+    def __exit__(self, *exc):
+        if self.saved_init_subclass is None:
+            del torch.nn.Module.__init_subclass__
+        else:
+            torch.nn.Module.__init_subclass__ = self.saved_init_subclass
+        for cls, original in reversed(self.restore):
+            cls.forward = original
+        return False
+
+
+def save_weights(job, which, spec):
+    """A checkpoint for fixtures that load one: the model class of the tree, its BatchNorm statistics moved by a few
+    training-mode passes on invented data (as a trained model's are), saved next to the tree's files."""
+    m = job.load(which, spec["entry"], fresh=True)
+    torch.manual_seed(SEED + 11)
+    model = eval(spec["build"], {"m": m, "torch": torch})
+    model.train()
+    with torch.no_grad():
+        for _ in range(3):
+            model(torch.randn(*spec["input"]) * 2 + 0.5)
+    path = os.path.join(job.spec[which]["root"], "oracle-weights.pt")
+    torch.save(model.state_dict(), path)
+    return path
+
+
+def segment_numbers(calls, spread_value):
+    """Numbers for one MC loop: the passes against a single deterministic pass, their spread, and BatchNorm."""
+    module = calls[0]["module"]
+    groups = {}
+    for call in calls:
+        key = (tuple(call["input"].shape), call["input"].numpy().tobytes())
+        groups.setdefault(key, []).append(call)
+    identical, max_deviation = 0, 0.0
+    with torch.no_grad():
+        for call in calls:
+            # The single deterministic pass: a copy of the model in eval mode on the same input.
+            reference = copy.deepcopy(call["module"]).eval()
+            det = first_tensor(reference(call["input"]))
+            identical += int(torch.equal(det, call["output"]))
+            max_deviation = max(max_deviation, float((det - call["output"]).abs().max()))
+    spread, distinct, distinct_votes = 0.0, 0, 0
+    for group in groups.values():
+        outs = torch.stack([c["output"] for c in group]).double()
+        if len(group) > 1:
+            spread = max(spread, float(outs.std(0).max()))
+        distinct = max(distinct, len({c["output"].numpy().tobytes() for c in group}))
+        votes = outs.argmax(-1)
+        distinct_votes = max(distinct_votes, max(len(set(votes[:, i].tolist())) for i in range(votes.shape[1])) if votes.dim() == 2 else 1)
+    first, last = calls[0], calls[-1]
+    norm_unchanged = all(torch.equal(first["before"][k], last["after"][k]) for k in first["before"])
+    return {
+        "passes": len(calls),
+        "inputs": len(groups),
+        "identical_to_deterministic": identical,
+        "max_deviation_from_deterministic": max_deviation,
+        "spread": spread,
+        "distinct_samples": distinct,
+        "distinct_votes": distinct_votes,
+        "norm_buffers": len(first["before"]),
+        "norm_unchanged": norm_unchanged,
+        "norm_eval_during": all(c["norm_eval"] for c in calls),
+        "norm_eval_after": all(not s.training for _, s in norm_layers(module)),
+        "dropout_layers": len(dropout_layers(module)),
+        "dropout_on_during": min(sum(1 for s in dropout_layers(c["module"]) if s.training) for c in calls),
+        "in_train": first["in_train"],
+        "returned_spread": spread_value[0] if spread_value else None,
+        # The returned spread's machine epsilon times the largest sample: the scale of a float rounding in its mean.
+        "returned_rounding": spread_value[1] * max(1.0, max(float(c["output"].abs().max()) for c in calls)) if spread_value else None,
+    }
+
+
+def as_magnitude(value):
+    """The largest absolute value of a returned spread (tensor, array or number) and its type's machine epsilon."""
+    if isinstance(value, torch.Tensor):
+        return float(value.detach().abs().max()), float(torch.finfo(value.dtype).eps) if value.is_floating_point() else 0.0
+    import numpy
+
+    array = numpy.asarray(value)
+    eps = float(numpy.finfo(array.dtype).eps) if numpy.issubdtype(array.dtype, numpy.floating) else 0.0
+    return float(numpy.abs(array).max()), eps
+
+
+def mc_passes(job, params):
+    """Runs the fixture's MC loops (original and fixed) and reports, per loop, whether the passes differ.
+
+    params: input ([shape] of the invented test batch), loader (optional batch size: `loader` is a DataLoader over x
+    with dummy labels), weights (optional {entry, build, input}: a checkpoint
+    `weights`), runs: list of {name, model_class (a workspace class name or a torch.nn class), call (statements
+    setting `r`, run with `m` = the entry module; null when the entry runs its loops at load, as a notebook does),
+    segments (pass counts of the loops, the last calls in order), spreads (optional expressions on `r`, one per
+    segment, giving the spread the fixture itself returns)}.
+    """
+    out = {}
+    classes = {run["model_class"] for run in params["runs"]}
+    for which in ("original", "fixed"):
+        if which == "fixed" and not job.has_fixed():
+            continue
+        weights = save_weights(job, which, params["weights"]) if params.get("weights") else None
+        torch.manual_seed(SEED + 1)
+        x = torch.randn(*params["input"])
+        loader = None
+        if params.get("loader"):
+            labels = torch.zeros(x.shape[0], dtype=torch.long)
+            loader = torch.utils.data.DataLoader(torch.utils.data.TensorDataset(x, labels), batch_size=params["loader"])
+        results = {}
+        with PassRecorder(classes) as recorder:
+            at_load = any(run.get("call") is None for run in params["runs"])
+            recorder.recording = at_load
+            m = job.load(which, fresh=True)
+            recorder.recording = False
+            for run in params["runs"]:
+                if run.get("call") is not None:
+                    recorder.calls = []
+                    namespace = {"m": m, "x": x, "torch": torch, "F": F, "weights": weights, "loader": loader}
+                    recorder.recording = True
+                    torch.manual_seed(SEED + 2)
+                    try:
+                        exec(run["call"], namespace)
+                    finally:
+                        recorder.recording = False
+                    r = namespace.get("r")
+                else:
+                    r = None
+                calls = [c for c in recorder.calls if c["class"] == run["model_class"]]
+                segments = []
+                end = len(calls)
+                start = end - sum(run["segments"])
+                if start < 0:
+                    raise RuntimeError("%s: %d passes recorded, %d expected" % (run["name"], end, sum(run["segments"])))
+                spreads = run.get("spreads") or [None] * len(run["segments"])
+                for count, spread_expr in zip(run["segments"], spreads):
+                    value = as_magnitude(eval(spread_expr, {"r": r, "torch": torch})) if spread_expr else None
+                    segments.append(segment_numbers(calls[start:start + count], value))
+                    start += count
+                results[run["name"]] = {"recorded": len(calls), "segments": segments}
+        out[which] = results
+    return out
+
+
+# ---------------------------------------------------------------------------------------------------------------
 # Registry and main.
 
 SCENARIOS = {
@@ -558,6 +967,9 @@ SCENARIOS = {
     "notebook-predictive": notebook_predictive,
     "ensemble-functions": ensemble_functions,
     "elbo-weight": elbo_weight,
+    "noise-sign-flip": noise_sign_flip,
+    "noise-variance": noise_variance,
+    "mc-passes": mc_passes,
 }
 
 

@@ -5,8 +5,12 @@ import type { Tree } from 'web-tree-sitter';
 
 /** One node of the syntax tree; offsets are UTF-16 code units into the parsed text. */
 export class SyntaxNode {
-  /** Named children, plus anonymous children that carry a field name (operators). */
-  readonly children: SyntaxNode[] = [];
+  /**
+   * Named children, plus anonymous children that carry a field name (operators). Leaves share one frozen empty
+   * array (most nodes are leaves, so this saves an allocation per node); `appendChild` replaces it on first use.
+   */
+  children: SyntaxNode[] = NO_CHILDREN;
+  private namedCache: SyntaxNode[] | undefined = undefined;
 
   constructor(
     /** Preorder index of this node in its file's `nodes` array. */
@@ -39,9 +43,23 @@ export class SyntaxNode {
     return this.children.filter((c) => c.field === field);
   }
 
-  /** Named children that are not comments. */
+  /**
+   * Named children that are not comments (computed once; the children array itself when nothing is left out).
+   * Callers must not mutate the returned array.
+   */
   get namedChildren(): SyntaxNode[] {
-    return this.children.filter((c) => c.type !== 'comment' && c.field !== 'operator' && c.field !== 'operators');
+    if (this.namedCache === undefined) {
+      const all = this.children;
+      const keep = (c: SyntaxNode) => c.type !== 'comment' && c.field !== 'operator' && c.field !== 'operators';
+      this.namedCache = all.every(keep) ? all : all.filter(keep);
+    }
+    return this.namedCache;
+  }
+
+  /** Adds a child while the tree is being built. */
+  appendChild(child: SyntaxNode): void {
+    if (this.children === NO_CHILDREN) this.children = [child];
+    else this.children.push(child);
   }
 
   /** Closest ancestor (or this node) whose type is one of the given types. */
@@ -55,6 +73,10 @@ export class SyntaxNode {
     return other.file === this.file && other.start >= this.start && other.end <= this.end && other.id >= this.id;
   }
 }
+
+/** The children of every leaf. */
+// Frozen: pushing onto it throws, so a stray mutation cannot leak into every leaf.
+const NO_CHILDREN = Object.freeze([]) as unknown as SyntaxNode[];
 
 /** A whole parsed file: its text, every node in preorder, and the parse errors. */
 export class SyntaxFile {
@@ -148,7 +170,7 @@ export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInte
           const missing: boolean = start === end && parent !== null && C._ts_tree_cursor_current_node_is_missing_wasm(treeAddress) === 1;
           created = new SyntaxNode(file.nodes.length, type, start, end, parent, field ?? (isNamed ? null : 'operator'), file, missing);
           file.nodes.push(created);
-          if (parent) parent.children.push(created);
+          if (parent) parent.appendChild(created);
           else file.root = created;
           if (type === 'ERROR' || missing) file.errors.push(created);
         }
@@ -225,7 +247,7 @@ export function toSyntaxFileWithCursor(tree: Tree, text: string): SyntaxFile {
           const missing: boolean = start === end && parent !== null && cursor.nodeIsMissing;
           created = new SyntaxNode(file.nodes.length, type, start, end, parent, field ?? (named ? null : 'operator'), file, missing);
           file.nodes.push(created);
-          if (parent) parent.children.push(created);
+          if (parent) parent.appendChild(created);
           else file.root = created;
           if (type === 'ERROR' || missing) file.errors.push(created);
         }
