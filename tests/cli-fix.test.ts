@@ -70,7 +70,11 @@ describe('rewriteFile', () => {
     const out = rewriteFile(r, [{ start: at, end: at + 5, newText: 'tf.exp(scale)' }], { lineEnding: '\n' });
     expect(JSON.parse(out).cells[1].source).toEqual(['scale = tf.Variable(1.0)\n', 'y = tf.exp(scale) * z\n']);
     expect(JSON.stringify(r.notebook!.json)).toBe(JSON.stringify(JSON.parse(raw)));
-    expect(rewriteFile(r, [{ start: at, end: at + 5, newText: 'q' }], { lineEnding: '\r\n' })).toContain('\r\n "cells"');
+    // A notebook written with CRLF keeps them: the new source is spliced into the file's own text.
+    const crlf = notebookReport('leaf.ipynb', raw.replace(/\n/g, '\r\n'));
+    const crlfOut = rewriteFile(crlf, [{ start: at, end: at + 5, newText: 'q' }], { lineEnding: '\r\n' });
+    expect(crlfOut).toContain('\r\n "cells"');
+    expect(crlfOut.replace(/\r\n/g, '')).not.toContain('\n');
   });
 });
 

@@ -4,6 +4,8 @@ import { execFileSync } from 'node:child_process';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { dropRateOfAlpha, erfc, normalCdf, signFlipProbability } from '../rules/unbounded-noise-rate/normal-cdf';
+import { applyOp, invertOp } from '../rules/unbounded-noise-rate/rate-walk';
+import type { SyntaxNode } from '../server/src/engine/api';
 import { checkSources } from '../server/src/engine/check';
 import type { ConfiguredSeverity } from '../server/src/engine/finding';
 import { checkTexts } from './helpers/engine';
@@ -272,5 +274,98 @@ def train_step(model, optimizer, loss):
     const layer = reports.find((r) => r.path === 'layer.py')!;
     expect(layer.findings.map((f) => [f.messageId, layer.text.slice(f.start, f.end)])).toEqual([['unbounded', 'self.log_alpha']]);
     expect(reports.filter((r) => r.path !== 'layer.py').flatMap((r) => r.findings)).toEqual([]);
+  });
+});
+
+const LEARNED_RATE = `import torch
+from torch import nn
+
+
+class SoilDropout(nn.Module):
+    def __init__(self, n):
+        super().__init__()
+        self.p_logit = nn.Parameter(torch.full((n,), -1.3862944))
+
+    def forward(self, x):
+        p = RATE
+        alpha = p / (1 - p)
+        return x * (1 + alpha.sqrt() * torch.randn_like(x))
+`;
+
+describe('α as the odds p/(1 − p) of a learned drop rate', () => {
+  it('maps p to α as in SOURCES.md §9 and back', () => {
+    const odds = { kind: 'odds' as const, eps: 0, node: null as unknown as SyntaxNode };
+    // SOURCES.md §9: p = 0.1 → α = 0.11111; p = 0.2 → α = 0.25; p = 0.5 → α = 1.
+    expect(applyOp(odds, 0.1)).toBeCloseTo(0.11111, 5);
+    expect(applyOp(odds, 0.2)).toBeCloseTo(0.25, 12);
+    expect(applyOp(odds, 0.5)).toBe(1);
+    expect(invertOp(odds, 1)).toBe(0.5);
+    expect(invertOp(odds, 0.25)).toBeCloseTo(0.2, 12);
+    // The odds grow without limit as p → 1: a sigmoid bounds p, not α.
+    expect(applyOp(odds, 1)).toBe(Number.POSITIVE_INFINITY);
+    expect(applyOp(odds, applyOp({ kind: 'sigmoid' }, Number.POSITIVE_INFINITY))).toBe(Number.POSITIVE_INFINITY);
+    // From memory (the logistic function's defining identity): for p = sigmoid(z), p/(1 − p) = e^z, so α = exp(z).
+    for (const z of [-3, -1.3862944, 0, 2, 5]) expect(applyOp(odds, applyOp({ kind: 'sigmoid' }, z)) / Math.exp(z)).toBeCloseTo(1, 10);
+    // An epsilon in the denominator caps the odds at 1/eps: p/(1 − p + 1e-6) ≤ 1/1e-6 at p = 1.
+    expect(applyOp({ ...odds, eps: 1e-6 }, 1)).toBeCloseTo(1e6, 3);
+  });
+
+  it('fires when only p is bounded by the sigmoid, and states the initial α = 0.25 at p = 0.2 (SOURCES.md §9)', async () => {
+    const [f] = await findings(LEARNED_RATE.replace('RATE', 'torch.sigmoid(self.p_logit)'));
+    expect(f?.messageId).toBe('unbounded');
+    expect(Number(figure(f!, 'initial α'))).toBeCloseTo(0.25, 6);
+    expect(Number(figure(f!, 'initial drop rate p = α/(1 + α)'))).toBeCloseTo(0.2, 6);
+  });
+
+  it('is quiet when p ≤ 0.5 (α ≤ 1, SOURCES.md §9) in each spelling of the bound', async () => {
+    for (const rate of ['torch.sigmoid(self.p_logit).clamp(max=0.5)', 'torch.clamp(torch.sigmoid(self.p_logit), 0.0, 0.5)', 'torch.sigmoid(self.p_logit.clamp(max=0.0))', '0.5 * torch.sigmoid(self.p_logit)']) {
+      expect(await findings(LEARNED_RATE.replace('RATE', rate)), rate).toEqual([]);
+    }
+  });
+
+  it('states the bound of p ≤ 0.9: α = 0.9/0.1 = 9 and Φ(−1/3) by math.erfc', async () => {
+    const [f] = await findings(LEARNED_RATE.replace('RATE', 'torch.sigmoid(self.p_logit).clamp(max=0.9)'));
+    expect(f?.messageId).toBe('loose-bound');
+    expect(Number(figure(f!, 'largest allowed α'))).toBeCloseTo(9, 10);
+    expect(Number(figure(f!, 'largest allowed drop rate p = α/(1 + α)'))).toBeCloseTo(0.9, 10);
+    // Φ(−1/√9) from Python's math.erfc (a general-purpose library), rounded as the figure rounds.
+    const reference = Number(execFileSync('python3', ['-c', 'import math; print(0.5 * math.erfc(1 / 3 / math.sqrt(2)))'], { encoding: 'utf8' }));
+    expect(Number(figure(f!, 'largest allowed gradient sign-flip probability Φ(−1/√α)'))).toBeCloseTo(reference, 4);
+    // The fix lowers the cap to the p at which α = 1: p = 0.5 (SOURCES.md §9).
+    expect(f!.fixes[0]?.edits.map((e) => e.newText)).toEqual(['0.5']);
+  });
+});
+
+describe('an epsilon on the noise std', () => {
+  it('does not bound α: the relative std with + 1e-8 still fires', async () => {
+    const layer = `import torch
+import torch.nn.functional as F
+from torch import nn
+from torch.distributions import Normal
+
+
+class LeafVD(nn.Module):
+    def __init__(self, n_in, n_out):
+        super().__init__()
+        self.theta = nn.Parameter(torch.randn(n_out, n_in) * 0.05)
+        self.log_alpha = nn.Parameter(torch.full((n_out, n_in), -4.0))
+
+    def forward(self, x):
+        return F.linear(x, Normal(self.theta, torch.exp(0.5 * LA) * self.theta.abs() + 1e-8).rsample())
+`;
+    const [f] = await findings(layer.replace('LA', 'self.log_alpha'));
+    expect(f?.messageId).toBe('unbounded');
+    // log α = −4 → α = e⁻⁴ (from memory: e⁻⁴ = 0.0183156), shown to four significant digits.
+    expect(Number(figure(f!, 'initial α'))).toBeCloseTo(0.0183156, 5);
+    expect(await findings(layer.replace('LA', 'self.log_alpha.clamp(max=0.0)'))).toEqual([]);
+  });
+
+  it('leaves a clamp at log α = 0 quiet when the epsilon is added to the std (α ≤ (1 + 1e-8)²)', async () => {
+    const text = UNBOUNDED.replace('torch.exp(0.5 * self.log_alpha)', '(torch.exp(0.5 * self.log_alpha.clamp(max=0.0)) + 1e-8)');
+    expect(await findings(text)).toEqual([]);
+    // A real loosening is still reported: log α ≤ 0.1 is α ≤ e^0.1 = 1.105 (from memory: e^0.1 = 1.1052).
+    const loose = await findings(UNBOUNDED.replace('torch.exp(0.5 * self.log_alpha)', '(torch.exp(0.5 * self.log_alpha.clamp(max=0.1)) + 1e-8)'));
+    expect(loose.map((f) => f.messageId)).toEqual(['loose-bound']);
+    expect(Number(figure(loose[0]!, 'largest allowed α'))).toBeCloseTo(1.1052, 3);
   });
 });

@@ -45,9 +45,12 @@ export function correctText(reduction: Reduction): string {
   return reduction === 'mean' ? 'mean(NLL) + KL/N' : 'ΣNLL + KL/K (K = N/B batches per epoch)';
 }
 
+/** The grouping format of message numbers (built once: constructing a number format is slow). */
+const TWO_DECIMALS = new Intl.NumberFormat('en-US', { maximumFractionDigits: 2 });
+
 /** A number for a message: exact when it has at most two decimals (468.75), else four significant digits. */
 export function messageNumber(value: number): string {
-  if (Number.isFinite(value) && Math.abs(value) < 1e15 && Math.abs(Math.round(value * 100) - value * 100) < 1e-9) return value.toLocaleString('en-US', { maximumFractionDigits: 2 });
+  if (Number.isFinite(value) && Math.abs(value) < 1e15 && Math.abs(Math.round(value * 100) - value * 100) < 1e-9) return TWO_DECIMALS.format(value);
   return formatNumber(value);
 }
 

@@ -1,7 +1,7 @@
 // Data flow for elbo-scale-mismatch: values of expressions through assignments, parameters (bound by the call
 // being analysed, or by every call site in the workspace), attributes and returns; which tensors are minibatches
 // and which are full training arrays; which loop feeds them; and what a scale expression means (N, B, K, a number).
-import { type Binding, type ClassInfo, type FunctionInfo, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
+import { type Binding, type ClassInfo, type ConstantValue, type FunctionInfo, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
 import { constant, ONE, OPAQUE, over, power, type Scale, symbol, type SymbolUse, times } from './scale';
 
 /** Argument bindings of one analysed call: parameter → the argument expression and the frame it is evaluated in. */
@@ -49,6 +49,8 @@ export interface IterableInfo {
 export interface TensorKind {
   kind: 'batch' | 'full' | 'unknown';
   loader: IterableInfo | null;
+  /** The loader's element itself (a tuple or dict of the minibatch's tensors), not one tensor of it. */
+  whole?: boolean;
 }
 
 /** Workspace classes and qualified names the analysis recognises. */
@@ -94,21 +96,63 @@ export class Flow {
     if (cached) return cached;
     const out: { call: SyntaxNode; receiver: SyntaxNode | null; constructs: boolean }[] = [];
     memo.set(fn.node, out);
-    const calledName = fn.name === '__init__' && fn.owner ? fn.owner.name : fn.name;
+    // Candidates by the called name (looked up in a per-file index): the function's own name; for a constructor the
+    // names of its class and of the subclasses that inherit it, and `super().__init__`; for forward / call / __call__
+    // every call (an instance may be called by any name).
+    const names = fn.name === '__init__' && fn.owner ? [...new Set([...this.sem.subclassesOf(fn.owner).map((c) => c.name), '__init__'])] : [fn.name];
     const owner = this.sem.workspace.analysisOfNode(fn.node) ?? this.sem.analysis;
     for (const file of [...this.sem.workspace.dependentsOf(owner.file.absPath)].sort()) {
-      const analysis = this.sem.workspace.analysis(file);
-      if (!analysis) continue;
-      for (const node of analysis.syntax.nodes) {
-        if (node.type !== 'call') continue;
-        const fnNode = node.child('function');
-        // Cheap name filter before resolving: the called name must be the function's name, or a module call.
-        const last = fnNode?.type === 'attribute' ? fnNode.child('attribute')?.text : fnNode?.text;
-        if (last !== calledName && !(isCallableMethod(fn) && fnNode) && fn.name !== '__init__') continue;
+      const index = this.callIndex(file);
+      const candidates = isCallableMethod(fn) ? index.all : names.flatMap((name) => index.byName.get(name) ?? []);
+      for (const node of candidates) {
         const resolved = this.resolveCall(node, null);
         if (resolved?.fn === fn) out.push({ call: node, receiver: resolved.receiver, constructs: !!resolved.constructs });
       }
     }
+    return out;
+  }
+
+  /** The calls of a file, in source order, and indexed by the called name (the last part of a dotted callee). */
+  callIndex(file: string): { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> } {
+    const memo = this.sem.workspace.memoTable<string, { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> }>('elbo-scale-mismatch:call-index');
+    const cached = memo.get(file);
+    if (cached) return cached;
+    const index = { all: [] as SyntaxNode[], byName: new Map<string, SyntaxNode[]>() };
+    memo.set(file, index);
+    for (const node of this.sem.workspace.analysis(file)?.syntax.nodes ?? []) {
+      if (node.type !== 'call') continue;
+      const fnNode = node.child('function');
+      if (!fnNode) continue;
+      index.all.push(node);
+      const last = fnNode.type === 'attribute' ? fnNode.child('attribute')?.text : fnNode.type === 'identifier' ? fnNode.text : undefined;
+      if (!last) continue;
+      const list = index.byName.get(last);
+      if (list) list.push(node);
+      else index.byName.set(last, [node]);
+    }
+    return index;
+  }
+
+  /**
+   * The files of the program around a file: the files that import it (directly or not), and every workspace file
+   * those import. Values that reach code in the file come from these files (helpers, models, training scripts).
+   */
+  programFiles(file: string): string[] {
+    const workspace = this.sem.workspace;
+    const memo = workspace.memoTable<string, string[]>('elbo-scale-mismatch:program-files');
+    const cached = memo.get(file);
+    if (cached) return cached;
+    const files = new Set(workspace.dependentsOf(file));
+    const queue = [...files];
+    while (queue.length) {
+      for (const imported of workspace.importsOf(queue.pop()!)) {
+        if (files.has(imported)) continue;
+        files.add(imported);
+        queue.push(imported);
+      }
+    }
+    const out = [...files].sort();
+    memo.set(file, out);
     return out;
   }
 
@@ -188,7 +232,7 @@ export class Flow {
     seen.add(node);
     if (node.type === 'identifier') {
       const out: Value[] = [];
-      for (const b of this.sem.bindings(node)) {
+      for (const b of this.reachingBindings(node)) {
         if (b.kind === 'param') {
           if (this.isSelfBinding(b)) {
             out.push({ node, frame, binding: b });
@@ -236,6 +280,120 @@ export class Flow {
     return [{ node, frame }];
   }
 
+  /**
+   * The bindings that reach a use of a name. The semantic model lets a binding made later in a loop reach uses
+   * earlier in the loop (around the back edge); such a binding cannot reach the use when another binding in the
+   * same loop, before the use, is executed on every path to it (`loss = …; loss.backward(); …; loss = …`).
+   */
+  reachingBindings(use: SyntaxNode): Binding[] {
+    const bindings = this.sem.bindings(use);
+    if (bindings.length < 2 || !bindings.some((b) => bindingPoint(b) > use.start)) return bindings;
+    const scopeNode = bindings[0]!.scope.node;
+    const useChain = conditionalChain(use, scopeNode);
+    const dominating = bindings.filter((b) => bindingPoint(b) < use.start && b.scope.node === scopeNode && !insideNestedFunction(b.node, scopeNode) && conditionalChain(b.node, scopeNode).every((c) => useChain.includes(c)));
+    if (dominating.length === 0) return bindings;
+    return bindings.filter((b) => {
+      if (bindingPoint(b) <= use.start) return true;
+      const loop = useChain.find((c) => (c.type === 'for_statement' || c.type === 'while_statement') && c.contains(b.node));
+      return !loop || !dominating.some((d) => loop.contains(d.node) && !(loop.type === 'for_statement' && !loop.child('body')?.contains(d.node)));
+    });
+  }
+
+  /**
+   * True when a node can only run on a path that a call's frame rules out: it lies in a branch of an `if` / `elif` /
+   * `else` or a conditional expression whose condition, over parameters the frame binds to constants (or to `None`
+   * or to some object), folds the other way (`if n_data is None: return nll + kl` when every call passes `n_data`).
+   */
+  deadUnder(node: SyntaxNode, frame: Frame | null): boolean {
+    if (!frame || frame.args.size === 0) return false;
+    for (let n: SyntaxNode = node; n.parent; n = n.parent) {
+      const parent: SyntaxNode = n.parent;
+      if (parent.type === 'function_definition' || parent.type === 'lambda' || parent.type === 'class_definition') return false;
+      if (parent.type === 'block') {
+        // After `if <true>: return …` in the same block, nothing runs.
+        for (const before of parent.namedChildren) {
+          if (before.start >= n.start) break;
+          if (before.type !== 'if_statement' || before.children.some((c) => c.type === 'elif_clause' || c.type === 'else_clause')) continue;
+          const last = before.child('consequence')?.namedChildren.filter((c) => c.type !== 'comment').pop();
+          if ((last?.type === 'return_statement' || last?.type === 'raise_statement') && this.truthUnder(before.child('condition'), frame) === true) return true;
+        }
+      }
+      if (parent.type === 'if_statement' || parent.type === 'elif_clause') {
+        if (n.field === 'consequence' && this.truthUnder(parent.child('condition'), frame) === false) return true;
+        if (parent.type === 'if_statement' && (n.type === 'elif_clause' || n.type === 'else_clause')) {
+          // An `elif` / `else` runs only when the `if` and the earlier `elif`s were false.
+          for (const c of [parent.child('condition'), ...parent.children.filter((c) => c.type === 'elif_clause' && c.start < n.start).map((c) => c.child('condition'))]) {
+            if (this.truthUnder(c, frame) === true) return true;
+          }
+        }
+      }
+      if (parent.type === 'conditional_expression') {
+        const [consequence, condition, alternative] = parent.namedChildren.filter((c) => c.type !== 'comment');
+        const truth = this.truthUnder(condition ?? null, frame);
+        if ((n === consequence && truth === false) || (n === alternative && truth === true)) return true;
+      }
+    }
+    return false;
+  }
+
+  /** The truth of a condition over parameters bound by a frame, when it folds (null when it does not). */
+  private truthUnder(condition: SyntaxNode | null, frame: Frame, depth = 0): boolean | null {
+    if (!condition || depth > MAX_DEPTH) return null;
+    const node = unwrapParens(condition);
+    if (node.type === 'not_operator') {
+      const inner = this.truthUnder(node.child('argument'), frame, depth + 1);
+      return inner === null ? null : !inner;
+    }
+    if (node.type === 'boolean_operator') {
+      const op = node.child('operator')?.text;
+      const l = this.truthUnder(node.child('left'), frame, depth + 1);
+      const r = this.truthUnder(node.child('right'), frame, depth + 1);
+      if (op === 'and') return l === false || r === false ? false : l === true && r === true ? true : null;
+      if (op === 'or') return l === true || r === true ? true : l === false && r === false ? false : null;
+      return null;
+    }
+    if (node.type === 'comparison_operator') {
+      const operands = node.children.filter((c) => c.field !== 'operators');
+      const operators = node.children.filter((c) => c.field === 'operators');
+      if (operands.length !== 2 || operators.length !== 1) return null;
+      const a = this.foldUnder(operands[0]!, frame, 0);
+      const b = this.foldUnder(operands[1]!, frame, 0);
+      if (!a || !b) return null;
+      const op = operators[0]!.text.replace(/\s+/g, ' ');
+      if (op === 'is' || op === 'is not') {
+        if (a.kind === 'object' && b.kind === 'object') return null;
+        const same = a.kind === 'none' && b.kind === 'none' ? true : a.kind === 'none' || b.kind === 'none' ? false : null;
+        return same === null ? null : op === 'is' ? same : !same;
+      }
+      if ((op === '==' || op === '!=') && a.kind === 'const' && b.kind === 'const') return op === '==' ? a.value === b.value : a.value !== b.value;
+      return null;
+    }
+    const value = this.foldUnder(node, frame, 0);
+    if (!value || value.kind === 'object') return null;
+    return value.kind === 'const' ? Boolean(value.value) : false;
+  }
+
+  /** A value over parameters bound by a frame: a constant, `None`, or some object that is not `None`; undefined when unknown. */
+  private foldUnder(expr: SyntaxNode, frame: Frame | null, depth: number): { kind: 'none' } | { kind: 'const'; value: ConstantValue } | { kind: 'object' } | undefined {
+    const node = unwrapParens(expr);
+    if (depth > 4) return undefined;
+    if (node.type === 'none') return { kind: 'none' };
+    if (['integer', 'float', 'string', 'true', 'false', 'concatenated_string'].includes(node.type)) {
+      const value = this.sem.fold(node);
+      return value === null ? undefined : { kind: 'const', value };
+    }
+    if (['call', 'binary_operator', 'list', 'tuple', 'dictionary', 'set', 'list_comprehension', 'lambda'].includes(node.type)) return { kind: 'object' };
+    if (node.type !== 'identifier') return undefined;
+    const bindings = this.sem.bindings(node);
+    if (bindings.length !== 1) return undefined;
+    const b = bindings[0]!;
+    // A name bound once to a value (`n_train = len(loader.dataset)`), or a parameter the frame binds.
+    if ((b.kind === 'assign' || b.kind === 'walrus') && b.value && !b.iterated && !b.unpack) return this.foldUnder(b.value, frame, depth + 1);
+    const arg = b.kind === 'param' && frame ? frame.args.get(b) : undefined;
+    if (!arg?.node) return undefined;
+    return this.foldUnder(arg.node, arg.frame, depth + 1);
+  }
+
   /** Right-hand sides of `name[...] = value` stores into the value bound by an assignment, in its scope. */
   private itemStores(b: Binding): SyntaxNode[] {
     const memo = this.sem.workspace.memoTable<Binding, SyntaxNode[]>('elbo-scale-mismatch:item-stores');
@@ -243,16 +401,33 @@ export class Flow {
     if (cached) return cached;
     const out: SyntaxNode[] = [];
     memo.set(b, out);
-    const scopeNode = b.scope.node;
+    for (const { target, right } of this.itemStoresByName(b.scope.node).get(b.name) ?? []) {
+      if (this.sem.bindings(target).includes(b)) out.push(right);
+    }
+    return out;
+  }
+
+  /**
+   * Every `name[...] = value` in a scope's subtree, by name, found in one walk per scope (a walk per binding made
+   * large modules quadratic).
+   */
+  private itemStoresByName(scopeNode: SyntaxNode): Map<string, { target: SyntaxNode; right: SyntaxNode }[]> {
+    const memo = this.sem.workspace.memoTable<SyntaxNode, Map<string, { target: SyntaxNode; right: SyntaxNode }[]>>('elbo-scale-mismatch:item-stores-by-name');
+    const cached = memo.get(scopeNode);
+    if (cached) return cached;
+    const byName = new Map<string, { target: SyntaxNode; right: SyntaxNode }[]>();
     for (const n of descendants(scopeNode)) {
       if (n.type !== 'assignment') continue;
       const left = n.child('left');
       const right = n.child('right');
       const target = left?.type === 'subscript' ? left.child('value') : null;
-      if (!right || target?.type !== 'identifier' || target.text !== b.name) continue;
-      if (this.sem.bindings(target).includes(b)) out.push(right);
+      if (!right || target?.type !== 'identifier') continue;
+      const list = byName.get(target.text) ?? [];
+      list.push({ target, right });
+      byName.set(target.text, list);
     }
-    return out;
+    memo.set(scopeNode, byName);
+    return byName;
   }
 
   /** Element `index` of the tuples a workspace function returns (`train_loader, val_loader = make_loaders(cfg)`). */
@@ -302,6 +477,13 @@ export class Flow {
           const t = this.typeOf(b.value, frame, depth + 1);
           if (t) return t;
         }
+        if (b.kind === 'for' || b.kind === 'comprehension') {
+          // A loop over listed layers (`for layer in (net.first, net.second)`): their common class.
+          const elements = this.loopElements(b, frame);
+          const types = elements?.map((e) => this.typeOf(e.node, e.frame, depth + 1)) ?? [];
+          const first = types[0];
+          if (first && types.every((t) => t && (t.kind === 'instance' ? first.kind === 'instance' && t.cls === first.cls : first.kind === 'external' && t.qualifiedName === first.qualifiedName))) return first;
+        }
       }
       return null;
     }
@@ -348,6 +530,55 @@ export class Flow {
         }
         return { iterable: right, path };
       }
+    }
+    return null;
+  }
+
+  /**
+   * The values a loop target takes, when the iterable spells them out: items of a literal tuple or list (selected
+   * along the target's unpacking path), arguments of `zip`, elements of `enumerate`, and the layers listed in an
+   * `nn.ModuleList([...])` / `nn.Sequential(...)` the iterable holds. Null when the elements cannot be listed.
+   */
+  loopElements(binding: Binding, frame: Frame | null): Value[] | null {
+    const loop = this.loopOf(binding);
+    if (!loop) return null;
+    return this.elementsAlong(loop.iterable, loop.path, frame, 0);
+  }
+
+  private elementsAlong(iterable: SyntaxNode, path: number[], frame: Frame | null, depth: number): Value[] | null {
+    if (depth > 4) return null;
+    const node = unwrapParens(iterable);
+    const select = (item: SyntaxNode, f: Frame | null): Value[] => {
+      let cur = unwrapParens(item);
+      for (const index of path) {
+        if (!['tuple', 'list', 'expression_list'].includes(cur.type) || !cur.namedChildren[index]) return [{ node: cur, frame: f }];
+        cur = unwrapParens(cur.namedChildren[index]!);
+      }
+      return [{ node: cur, frame: f }];
+    };
+    if (node.type === 'tuple' || node.type === 'list') return node.namedChildren.filter((c) => c.type !== 'comment').flatMap((item) => select(item, frame));
+    if (node.type === 'call') {
+      const callee = this.sem.callee(node);
+      const args = (node.child('arguments')?.namedChildren ?? []).filter((a) => a.type !== 'keyword_argument' && a.type !== 'comment');
+      if (callee.qualifiedName === 'builtins.zip' && path.length > 0 && args[path[0]!]) return this.elementsAlong(args[path[0]!]!, path.slice(1), frame, depth + 1) ?? [{ node: args[path[0]!]!, frame }];
+      if (callee.qualifiedName === 'builtins.enumerate' && path[0] === 1 && args[0]) return this.elementsAlong(args[0], path.slice(1), frame, depth + 1);
+      if (callee.qualifiedName && ['torch.nn.ModuleList', 'torch.nn.Sequential', 'torch.nn.modules.container.ModuleList', 'torch.nn.modules.container.Sequential'].includes(callee.qualifiedName)) {
+        const first = args[0] ? unwrapParens(args[0]) : null;
+        if (callee.qualifiedName.endsWith('ModuleList')) return first && (first.type === 'list' || first.type === 'tuple') ? this.elementsAlong(first, path, frame, depth + 1) : null;
+        return args.flatMap((a) => select(a, frame));
+      }
+    }
+    if (node.type === 'identifier' || node.type === 'attribute' || (node.type === 'subscript' && node.childrenOf('subscript')[0]?.type === 'slice')) {
+      // A name or attribute holding a literal list or a module container (`self.layers`), or a slice of one.
+      const target = node.type === 'subscript' ? node.child('value')! : node;
+      const out: Value[] = [];
+      for (const v of this.values(target, frame)) {
+        if (v.node === target || v.binding) return null;
+        const inner = this.elementsAlong(v.node, path, v.frame, depth + 1);
+        if (!inner) return null;
+        out.push(...inner);
+      }
+      return out.length > 0 ? out : null;
     }
     return null;
   }
@@ -489,7 +720,7 @@ export class Flow {
         const index = node.childrenOf('subscript');
         if (!value) return unknown;
         const base = this.tensorKind(value, frame, depth + 1);
-        if (base.kind === 'batch') return base;
+        if (base.kind === 'batch') return { kind: 'batch', loader: base.loader };
         for (const ix of index) {
           const batchIndex = this.batchIndex(ix, frame);
           if (batchIndex) return { kind: 'batch', loader: batchIndex };
@@ -526,6 +757,17 @@ export class Flow {
         const arg = node.child('argument');
         return arg ? this.tensorKind(arg, frame, depth + 1) : unknown;
       }
+      case 'conditional_expression': {
+        const options = node.namedChildren.filter((c) => c.type !== 'comment');
+        return combine([options[0], options[2]].filter((c): c is SyntaxNode => !!c).map((c) => this.tensorKind(c, frame, depth + 1)));
+      }
+      case 'generator_expression':
+      case 'list_comprehension': {
+        // `(t.to(device) for t in batch)`: the tensors its element expression makes.
+        const body = node.child('body');
+        const kind = body ? this.tensorKind(body, frame, depth + 1) : unknown;
+        return kind.whole ? { kind: kind.kind, loader: kind.loader } : kind;
+      }
       default:
         return unknown;
     }
@@ -536,21 +778,35 @@ export class Flow {
     const unknown: TensorKind = { kind: 'unknown', loader: null };
     const loop = this.loopBinding(b, frame);
     if (loop) {
-      if (loop.info.kind === 'loader' && !(loop.info.enumerated && loop.path[0] === 0)) return { kind: 'batch', loader: loop.info };
+      if (loop.info.kind === 'loader' && !(loop.info.enumerated && loop.path[0] === 0)) {
+        const whole = loop.info.enumerated ? loop.path.length === 1 : loop.path.length === 0;
+        return { kind: 'batch', loader: loop.info, whole };
+      }
+      // A loop over the tensors of a whole minibatch (`(t.to(device) for t in batch)`): each is a minibatch tensor.
+      const loopNode = this.loopOf(b);
+      if (loop.info.kind === 'unknown' && loopNode && loopNode.path.length === 0) {
+        const container = this.tensorKind(loopNode.iterable, frame, depth + 1);
+        if (container.kind === 'batch' && container.whole) return { kind: 'batch', loader: container.loader };
+      }
       return unknown;
     }
-    if (b.unpack) return this.tensorKind(b.unpack.from, frame, depth + 1);
+    if (b.unpack) {
+      const from = this.tensorKind(b.unpack.from, frame, depth + 1);
+      return from.whole ? { kind: from.kind, loader: from.loader } : from;
+    }
     if (b.kind === 'param' && b.definition) {
       const fn = this.sem.moduleOf(b.definition).functionByNode.get(b.definition.id);
       if (fn && fn.owner && ['training_step', 'validation_step', 'test_step'].includes(fn.name) && fn.params.indexOf(b) === 1 && this.sem.isSubclassOf(fn.owner, LIGHTNING_MODULES)) {
-        return { kind: 'batch', loader: { kind: 'loader', source: null, batchSize: null, batchSizeText: null, enumerated: false } };
+        return { kind: 'batch', loader: { kind: 'loader', source: null, batchSize: null, batchSizeText: null, enumerated: false }, whole: true };
       }
     }
     return unknown;
   }
 
   /** When an index expression selects a minibatch (`idx` from `perm.split(bs)`, `i:i + bs` from `range(0, n, bs)`), the loop. */
-  private batchIndex(ix: SyntaxNode, frame: Frame | null): IterableInfo | null {
+  private batchIndex(ix: SyntaxNode, frame: Frame | null, depth = 0): IterableInfo | null {
+    // Bounded: indexes nested thousands deep must not overflow the stack.
+    if (depth > MAX_DEPTH) return null;
     const node = unwrapParens(ix);
     const ids: SyntaxNode[] = [];
     if (node.type === 'identifier') ids.push(node);
@@ -560,7 +816,7 @@ export class Flow {
     } else if (node.type === 'subscript') {
       // perm[i:i + bs] used as an index.
       const inner = node.childrenOf('subscript')[0];
-      if (inner) return this.batchIndex(inner, frame);
+      if (inner) return this.batchIndex(inner, frame, depth + 1);
     } else return null;
     for (const id of ids) {
       for (const v of this.values(id, frame)) {
@@ -569,7 +825,7 @@ export class Flow {
         if (!v.binding) {
           if (v.node.type === 'subscript') {
             const inner = v.node.childrenOf('subscript')[0];
-            const r = inner ? this.batchIndex(inner, v.frame) : null;
+            const r = inner ? this.batchIndex(inner, v.frame, depth + 1) : null;
             if (r) return r;
           }
           continue;
@@ -619,9 +875,8 @@ export class Flow {
     if (memo.has(b0)) return memo.get(b0)!;
     memo.set(b0, false);
     let result = false;
-    const scopeNode = b0.scope.node;
-    for (const n of descendants(scopeNode)) {
-      if (n.type !== 'identifier' || n.text !== identifier.text || n === b0.node) continue;
+    for (const n of this.identifiersByName(b0.scope.node).get(identifier.text) ?? []) {
+      if (n === b0.node) continue;
       const reaching = this.sem.bindings(n);
       if (!reaching.some((r) => bindings.includes(r))) continue;
       // Look through conversions (`torch.tensor(X)`, `X.float()`) to where the array goes.
@@ -649,6 +904,22 @@ export class Flow {
     }
     memo.set(b0, result);
     return result;
+  }
+
+  /** The identifiers of a scope's subtree by name, found in one walk per scope (a walk per binding made large modules quadratic). */
+  private identifiersByName(scopeNode: SyntaxNode): Map<string, SyntaxNode[]> {
+    const memo = this.sem.workspace.memoTable<SyntaxNode, Map<string, SyntaxNode[]>>('elbo-scale-mismatch:identifiers-by-name');
+    const cached = memo.get(scopeNode);
+    if (cached) return cached;
+    const byName = new Map<string, SyntaxNode[]>();
+    for (const n of descendants(scopeNode)) {
+      if (n.type !== 'identifier') continue;
+      const list = byName.get(n.text);
+      if (list) list.push(n);
+      else byName.set(n.text, [n]);
+    }
+    memo.set(scopeNode, byName);
+    return byName;
   }
 
   /** True when a value (through names) is a Dataset object: a Dataset subclass instance, TensorDataset, Subset, a random_split part. */
@@ -738,9 +1009,20 @@ export class Flow {
         if (from.type === 'call' && this.sem.isCallTo(from, RANDOM_SPLIT)) {
           const lengths = this.sem.argument(from, 1, 'lengths');
           const list = lengths ? unwrapParens(lengths) : null;
-          const item = list && (list.type === 'list' || list.type === 'tuple') ? list.namedChildren[v.binding.unpack.index] : null;
-          const folded = item ? this.sem.fold(item) : null;
-          if (typeof folded === 'number') return folded;
+          const items = list && (list.type === 'list' || list.type === 'tuple') ? list.namedChildren.map((c) => this.sem.fold(c)) : [];
+          const index = v.binding.unpack.index;
+          if (items.length > index && items.every((x): x is number => typeof x === 'number')) {
+            if (items.every((x) => Number.isInteger(x) && x >= 1)) return items[index]!;
+            // Fractions: random_split takes floor(n·f) of each and hands the remainder out one by one from the
+            // first part on (PyTorch's random_split documentation and source; from memory).
+            const dataset = this.sem.argument(from, 0, 'dataset');
+            const total = dataset ? this.lengthOf(dataset, v.frame, depth + 1) : null;
+            if (total === null || Math.abs(items.reduce((a, x) => a + x, 0) - 1) > 1e-6) return null;
+            const parts = items.map((f) => Math.floor(total * f));
+            const remainder = total - parts.reduce((a, x) => a + x, 0);
+            for (let i = 0; i < remainder; i++) parts[i % parts.length]! += 1;
+            return parts[index]!;
+          }
         }
       }
       if (n.type === 'attribute' && n.child('attribute')?.text === 'dataset') {
@@ -817,8 +1099,18 @@ export class Flow {
     return result;
   }
 
-  private use(symbolName: SymbolUse['symbol'], node: SyntaxNode, value: number | null, strong: boolean): Scale {
-    return symbol({ symbol: symbolName, text: node.text, value, strong });
+  private use(symbolName: SymbolUse['symbol'], node: SyntaxNode, value: number | null, strong: boolean, sources?: SyntaxNode[]): Scale {
+    return symbol({ symbol: symbolName, text: node.text, value, strong, ...(sources && sources.length > 0 ? { sources } : {}) });
+  }
+
+  /** The expressions that identify a loader's data: the loader construction and the dataset it is given. */
+  loaderSources(info: IterableInfo): SyntaxNode[] {
+    const source = info.source;
+    if (!source || info.kind !== 'loader') return [];
+    const out = [source.node];
+    const dataset = source.node.type === 'call' ? this.sem.argument(source.node, 0, 'dataset') : null;
+    if (dataset) for (const v of this.values(dataset, source.frame)) out.push(v.node);
+    return out;
   }
 
   private scaleUncached(node: SyntaxNode, frame: Frame | null, depth: number): Scale {
@@ -923,7 +1215,7 @@ export class Flow {
   /** Marks a named non-unit constant as documented when a comment sits on its binding's line (a deliberate tempering or weight). */
   private documentedConstant(s: Scale, node: SyntaxNode): Scale {
     if (s.coef === null || s.coef === 1 || s.coef === -1) return s;
-    return hasCommentOnLine(node) ? { ...s, documented: true } : s;
+    return hasCommentOnLine(this.sem, node) ? { ...s, documented: true } : s;
   }
 
   private binaryScale(node: SyntaxNode, frame: Frame | null, depth: number): Scale {
@@ -1107,18 +1399,18 @@ export class Flow {
     if (it.kind === 'loader' && it.source?.node.type === 'call') {
       const n = this.loaderDatasetLength(it);
       const k = n !== null && it.batchSize ? Math.ceil(n / it.batchSize) : null;
-      return this.use('K', node, k, true);
+      return this.use('K', node, k, true, this.loaderSources(it));
     }
     if (target.type === 'attribute' && target.child('attribute')?.text === 'dataset') {
       const object = target.child('object');
       if (object) {
         const loader = this.iterable(object, frame, depth + 1);
-        if (loader.kind === 'loader') return this.use('N', node, this.loaderDatasetLength(loader), true);
+        if (loader.kind === 'loader') return this.use('N', node, this.loaderDatasetLength(loader), true, this.loaderSources(loader));
         // `len(<something>.dataset)`: the loader convention (`trainer.datamodule.train_dataloader().dataset`), known by form only.
         return this.use('N', node, null, false);
       }
     }
-    if (this.isDataset(target, frame)) return this.use('N', node, this.lengthOf(target, frame), true);
+    if (this.isDataset(target, frame)) return this.use('N', node, this.lengthOf(target, frame), true, this.values(target, frame).map((v) => v.node));
     return this.rowsMeaning(node, target, frame, depth);
   }
 
@@ -1165,18 +1457,61 @@ export function* descendants(root: SyntaxNode): Generator<SyntaxNode> {
   }
 }
 
+/** Constructs that make the code inside them run conditionally or repeatedly (as the semantic model counts them). */
+const CONDITIONAL_TYPES = new Set(['if_statement', 'elif_clause', 'else_clause', 'for_statement', 'while_statement', 'try_statement', 'except_clause', 'finally_clause', 'match_statement', 'case_clause', 'conditional_expression', 'boolean_operator']);
+
+/** The conditional constructs between a node and its scope node, innermost first. */
+function conditionalChain(node: SyntaxNode, scopeNode: SyntaxNode): SyntaxNode[] {
+  const out: SyntaxNode[] = [];
+  for (let n = node.parent; n && n !== scopeNode; n = n.parent) if (CONDITIONAL_TYPES.has(n.type)) out.push(n);
+  return out;
+}
+
+/** True when a node lies inside a function or lambda nested in the scope node. */
+function insideNestedFunction(node: SyntaxNode, scopeNode: SyntaxNode): boolean {
+  for (let n = node.parent; n && n !== scopeNode; n = n.parent) if (n.type === 'function_definition' || n.type === 'lambda') return true;
+  return false;
+}
+
+/** Offset at which a binding takes effect: after the value it is bound to has been evaluated. */
+function bindingPoint(b: Binding): number {
+  const value = b.kind === 'assign' || b.kind === 'augassign' || b.kind === 'walrus' || b.kind === 'with' || b.kind === 'for' || b.kind === 'comprehension' ? (b.value ?? b.unpack?.from ?? null) : null;
+  return value ? Math.max(b.node.start, value.end) : b.node.start;
+}
+
+/**
+ * Start offsets (sorted) of the documenting comments of a node's file, found once per file: tool directives
+ * (`# noqa`, `# type: ignore`, suppressions, test markers) document nothing.
+ */
+function documentingComments(sem: Semantics, node: SyntaxNode): number[] {
+  const commentStarts = sem.workspace.memoTable<object, number[]>('elbo-scale-mismatch:comments');
+  const cached = commentStarts.get(node.file);
+  if (cached) return cached;
+  const starts = node.file.nodes.filter((c) => c.type === 'comment' && !/^#\s*(noqa|type:|pragma|noisewise:|fmt:|pylint:|expect\[|\^)/.test(c.text)).map((c) => c.start);
+  commentStarts.set(node.file, starts);
+  return starts;
+}
+
 /** True when a comment sits on the line of a node (or on the line just above it). */
-function hasCommentOnLine(node: SyntaxNode): boolean {
+function hasCommentOnLine(sem: Semantics, node: SyntaxNode): boolean {
   const text = node.file.text;
   const lineStart = text.lastIndexOf('\n', node.start - 1) + 1;
   const lineEnd = text.indexOf('\n', node.end);
   const end = lineEnd === -1 ? text.length : lineEnd;
   const prevStart = lineStart > 0 ? text.lastIndexOf('\n', lineStart - 2) + 1 : lineStart;
-  for (const c of node.file.nodes) {
-    // Tool directives (`# noqa`, `# type: ignore`, suppressions, test markers) document nothing.
-    if (c.type !== 'comment' || /^#\s*(noqa|type:|pragma|noisewise:|fmt:|pylint:|expect\[|\^)/.test(c.text)) continue;
-    if (c.start >= lineStart && c.start < end) return true;
-    if (c.start >= prevStart && c.start < lineStart && text.slice(prevStart, c.start).trim() === '') return true;
+  const starts = documentingComments(sem, node);
+  // The first comment at or after the previous line's start (binary search), then the few up to the line's end.
+  let lo = 0;
+  let hi = starts.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >> 1;
+    if (starts[mid]! < prevStart) lo = mid + 1;
+    else hi = mid;
+  }
+  for (let i = lo; i < starts.length && starts[i]! < end; i++) {
+    const c = starts[i]!;
+    if (c >= lineStart) return true;
+    if (text.slice(prevStart, c).trim() === '') return true;
   }
   return false;
 }

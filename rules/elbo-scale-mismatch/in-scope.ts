@@ -66,20 +66,36 @@ function visibleBindings(flow: Flow, at: SyntaxNode): { name: string; bindings: 
   return out;
 }
 
-/** An expression for N, K or B that can be written at a node. */
+/** An expression for N, K or B that can be written at a node (remembered per node, quantity and loader). */
 export function findInScope(flow: Flow, at: SyntaxNode, wanted: Wanted, loader: IterableInfo | null): ScopeExpression | null {
+  const memo = flow.sem.workspace.memoTable<SyntaxNode, Map<string, Map<SyntaxNode | null, ScopeExpression | null>>>('elbo-scale-mismatch:in-scope');
+  let byWanted = memo.get(at);
+  if (!byWanted) memo.set(at, (byWanted = new Map()));
+  let byLoader = byWanted.get(wanted);
+  if (!byLoader) byWanted.set(wanted, (byLoader = new Map()));
+  const key = loader?.kind === 'loader' && loader.source ? loader.source.node : null;
+  if (byLoader.has(key)) return byLoader.get(key)!;
+  const result = findInScopeUncached(flow, at, wanted, loader);
+  byLoader.set(key, result);
+  return result;
+}
+
+function findInScopeUncached(flow: Flow, at: SyntaxNode, wanted: Wanted, loader: IterableInfo | null): ScopeExpression | null {
   let weak: ScopeExpression | null = null;
   const visible = visibleBindings(flow, at);
   const useScope = flow.sem.moduleOf(at).scopeOf(at);
   const local = visible.filter((v) => v.bindings.every((b) => b.scope === useScope));
   const outer = visible.filter((v) => !local.includes(v));
   const fromSelf = selfAttribute(flow, at, wanted);
+  // With a known loader, a quantity read off other data (another loader or dataset) is not this loop's N or K.
+  const ours = loader ? new Set(flow.loaderSources(loader)) : null;
+  const otherData = (s: Scale) => ours !== null && ours.size > 0 && s.symbols.some((u) => u.sources && !u.sources.some((x) => ours.has(x as SyntaxNode)));
   for (const { name, bindings } of [...local, ...(fromSelf?.strong ? [] : outer)]) {
     if (bindings.length !== 1) continue;
     const b = bindings[0]!;
     if (b.kind === 'def' || b.kind === 'class' || b.kind === 'import') continue;
     const s = bindingScale(flow, b);
-    if (!means(s, wanted)) continue;
+    if (!means(s, wanted) || otherData(s)) continue;
     const strong = s.symbols.length > 0 && s.symbols.every((u) => u.strong);
     const value = s.symbols.find((u) => u.value !== null)?.value ?? null;
     if (strong) return { text: name, strong, value };
@@ -87,7 +103,7 @@ export function findInScope(flow: Flow, at: SyntaxNode, wanted: Wanted, loader: 
   }
   // The loader that feeds the loop, when it is visible here by name.
   if (loader?.kind === 'loader' && loader.source && wanted !== 'B') {
-    const name = visibleNameOf(flow, at, loader.source);
+    const name = visibleNameOf(flow, at, loader.source) ?? selfAttributeHolding(flow, at, loader.source);
     if (name) return { text: wanted === 'N' ? `len(${name}.dataset)` : `len(${name})`, strong: true, value: null };
   }
   if (fromSelf?.strong) return fromSelf;
@@ -121,6 +137,18 @@ function visibleNameOf(flow: Flow, at: SyntaxNode, target: Value): string | null
       const values = b.value && (b.kind === 'assign' || b.kind === 'walrus') && !b.unpack ? flow.values(b.value, null) : b.kind === 'param' ? flow.paramArgs(b, null).flatMap((a) => (a.node ? flow.values(a.node, a.frame) : [])) : [];
       if (values.some((v) => v.node === target.node)) return name;
     }
+  }
+  return null;
+}
+
+/** In a method: `self.<attribute>` when the attribute holds the given value (the loader a trainer keeps). */
+function selfAttributeHolding(flow: Flow, at: SyntaxNode, target: Value): string | null {
+  const fn = flow.sem.moduleOf(at).enclosingFunction(at);
+  const self = fn?.owner ? fn.params[0] : undefined;
+  if (!fn?.owner || !self || !flow.isSelfBinding(self)) return null;
+  for (const [attr, list] of fn.owner.attributes) {
+    if (list.length !== 1 || !list[0]!.value) continue;
+    if (flow.values(list[0]!.value, null).some((v) => v.node === target.node)) return `${self.name}.${attr}`;
   }
   return null;
 }

@@ -61,17 +61,21 @@ function reportVerdict(context: RuleContext, flow: Flow, v: Verdict): void {
   const hint = fixes.length > 0 ? '' : noFixHint(v, meanOverWeights);
   const inScope = v.n.text ? null : findInScope(flow, v.combo.node, 'N', v.loader);
   const nText = v.n.text ?? inScope?.text ?? null;
+  // A batch sum divided by the batch size is a per-example mean (and a mean times B a sum): say it as it reads.
+  const dataDims = v.data.scale.dims;
+  const shown = v.reduction === 'sum' && dataDims.b === -1 && dataDims.n === 0 ? 'mean' : v.reduction === 'mean' && dataDims.b === 1 && dataDims.n === 0 ? 'sum' : v.reduction;
+  const shownKl = shown === v.reduction ? klRelative : { ...klRelative, b: klRelative.b + (shown === 'mean' ? -1 : 1) };
   context.report({
     node: v.combo.node,
     messageId: 'weight',
     data: {
       factor: words.factor,
       strength: words.strength,
-      form: formText(v.reduction, klRelative, meanOverWeights),
-      correct: correctText(v.reduction),
+      form: formText(shown, shownKl, meanOverWeights),
+      correct: correctText(shown),
       data: excerpt(v.combo.dataSide?.text ?? v.data.core.text),
       kl: excerpt(v.combo.klSide?.text ?? v.kl.core.text),
-      dataForm: v.reduction === 'mean' ? 'a per-example mean over the minibatch' : 'summed over the minibatch',
+      dataForm: shown === 'mean' ? 'a per-example mean over the minibatch' : 'summed over the minibatch',
       klForm: meanOverWeights ? 'averages the KL over the weights (the ELBO sums it)' : 'holds the total KL',
       numbers: numbersSentence({ n: v.n.value, b: v.b.value, numeric: v.numeric, strength: words.strength }) + (v.dims.p !== 0 ? ' P is the number of weights the KL is averaged over.' : '') + (v.relative.schedule ? ' The KL weight schedule is counted at its final value 1.' : ''),
       hint,

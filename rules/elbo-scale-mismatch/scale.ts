@@ -34,6 +34,8 @@ export interface SymbolUse {
   value: number | null;
   /** True when the meaning comes from data flow (a loader, a dataset, an array shape), false when only from a name. */
   strong: boolean;
+  /** For N and K read off a loader or a dataset: the expressions that identify that data (the loader call, the dataset). */
+  sources?: unknown[];
 }
 
 /** The dimensionless factor 1. */

@@ -27,15 +27,22 @@ export interface Term {
   closedForm?: boolean;
 }
 
-/** Where data terms and KL terms are first added together. */
+/**
+ * Where data terms and KL terms are first added together. The combination carries its own terms (as they are
+ * transformed on the way up to the optimised root), so that each `+` is judged with the scale facts that reach it,
+ * whichever alternative definition of a name it comes from.
+ */
 export interface Combination {
   node: SyntaxNode;
   /** The operand holding the data term and the one holding the KL term (null for combinations such as `sum([...])`). */
   dataSide: SyntaxNode | null;
   klSide: SyntaxNode | null;
-  /** Cores of the data terms and of the KL terms this combination adds (the terms themselves are read from the root). */
+  /** Cores of the data terms and of the KL terms this combination adds. */
   dataCores: SyntaxNode[];
   klCores: SyntaxNode[];
+  /** The data terms and the KL terms this combination adds, with the factors and reductions applied up to the root. */
+  data: Term[];
+  kl: Term[];
   /** True when the data operand also holds KL terms (then the data operand must not be rescaled). */
   dataSideHasKl: boolean;
 }
@@ -53,15 +60,21 @@ function combine(node: SyntaxNode, l: Expansion, r: Expansion, left: SyntaxNode 
   const combos = [...l.combos, ...r.combos];
   const covered = new Set(combos.flatMap((c) => c.klCores));
   const add = (data: Expansion, kl: Expansion, dataSide: SyntaxNode | null, klSide: SyntaxNode | null) => {
-    const klCores = kl.terms.filter((t) => t.kind === 'kl' && !covered.has(t.core)).map((t) => t.core);
-    const dataCores = data.terms.filter((t) => t.kind === 'data').map((t) => t.core);
-    if (klCores.length === 0 || dataCores.length === 0) return;
-    combos.push({ node, dataSide, klSide, dataCores, klCores, dataSideHasKl: has(data, 'kl') || has(kl, 'data') });
-    for (const c of klCores) covered.add(c);
+    const klTerms = kl.terms.filter((t) => t.kind === 'kl' && !covered.has(t.core));
+    const dataTerms = data.terms.filter((t) => t.kind === 'data');
+    if (klTerms.length === 0 || dataTerms.length === 0) return;
+    combos.push({ node, dataSide, klSide, dataCores: dataTerms.map((t) => t.core), klCores: klTerms.map((t) => t.core), data: dataTerms, kl: klTerms, dataSideHasKl: has(data, 'kl') || has(kl, 'data') });
+    for (const t of klTerms) covered.add(t.core);
   };
   if (has(l, 'data') && has(r, 'kl')) add(l, r, left, right);
   if (has(r, 'data') && has(l, 'kl')) add(r, l, right, left);
   return combos;
+}
+
+/** Applies a change to every term of an expansion, the terms held by its combinations included. */
+function mapTerms(e: Expansion, change: (t: Term) => Term): Expansion {
+  if (e.terms.length === 0 && e.combos.length === 0) return e;
+  return { terms: e.terms.map(change), combos: e.combos.map((c) => ({ ...c, data: c.data.map(change), kl: c.kl.map(change) })) };
 }
 
 const LOSS_FUNCTIONS = ['cross_entropy', 'nll_loss', 'mse_loss', 'l1_loss', 'smooth_l1_loss', 'huber_loss', 'binary_cross_entropy', 'binary_cross_entropy_with_logits', 'gaussian_nll_loss', 'poisson_nll_loss'];
@@ -130,7 +143,7 @@ export class Expander {
         return this.call(node, frame, depth);
       case 'conditional_expression': {
         const options = node.namedChildren.filter((c) => c.type !== 'comment');
-        return best([options[0], options[2]].filter((c): c is SyntaxNode => !!c).map((c) => this.expand(c, frame, depth + 1)));
+        return alternatives([options[0], options[2]].filter((c): c is SyntaxNode => !!c && !this.flow.deadUnder(c, frame)).map((c) => this.expand(c, frame, depth + 1)));
       }
       case 'subscript':
         return this.subscript(node, frame, depth);
@@ -145,9 +158,10 @@ export class Expander {
     const right = node.child('right');
     if (!left || !right) return EMPTY;
     if (op === '+' || op === '-') {
-      if (this.isGaussianKlShape(node, frame)) return { terms: [{ kind: 'kl', core: node, reduction: null, scale: ONE, sign: 1, inputs: [], closedForm: true }], combos: [] };
       const l = this.expand(left, frame, depth + 1);
       const r0 = this.expand(right, frame, depth + 1);
+      // A closed form written out here (its operands hold no terms of their own, unlike `total + (...).sum()`).
+      if (l.terms.length === 0 && r0.terms.length === 0 && this.isGaussianKlShape(node, frame)) return { terms: [{ kind: 'kl', core: node, reduction: null, scale: ONE, sign: 1, inputs: [], closedForm: true }], combos: [] };
       const r = op === '-' ? negate(r0) : r0;
       const all = [...l.terms, ...r.terms];
       const merged = mergeLogDensities(all, node);
@@ -184,10 +198,11 @@ export class Expander {
         if (node.type === 'attribute') options.push(this.attributeFallback(node, frame));
         continue;
       }
+      if (v.frame && this.flow.deadUnder(v.node, v.frame)) continue;
       if (v.node.type === 'augmented_assignment') options.push(this.augmented(v.node, null, depth + 1));
       else options.push(this.expand(v.node, v.frame, depth + 1));
     }
-    return best(options);
+    return alternatives(options);
   }
 
   /** `loss += beta * kl`, `kl += layer.kl()`, `loss /= n`: the previous value combined with the right-hand side. */
@@ -196,9 +211,9 @@ export class Expander {
     const right = node.child('right');
     const op = node.child('operator')?.text;
     if (!left || !right || left.type !== 'identifier') return EMPTY;
-    const previous = best(
-      this.sem
-        .bindings(left)
+    const previous = alternatives(
+      this.flow
+        .reachingBindings(left)
         .filter((b) => b.node !== left)
         .map((b) => {
           if (b.kind === 'augassign' && b.value) return this.augmented(b.value, frame, depth + 1);
@@ -234,7 +249,7 @@ export class Expander {
         }
       }
     }
-    return best(options);
+    return alternatives(options);
   }
 
   private subscript(node: SyntaxNode, frame: Frame | null, depth: number): Expansion {
@@ -256,7 +271,7 @@ export class Expander {
         }
       }
     }
-    return best(options);
+    return alternatives(options);
   }
 
   private call(node: SyntaxNode, frame: Frame | null, depth: number): Expansion {
@@ -278,6 +293,7 @@ export class Expander {
       return inner ? this.reduce(node, inner, REDUCTION_FUNCTIONS[q]!, dim, frame, depth) : EMPTY;
     }
     if (q === 'builtins.sum') return this.builtinSum(node, frame, depth);
+    if (q === 'torch.stack' || q === 'torch.cat' || q === 'torch.hstack') return this.stacked(node, frame, depth);
     // Data terms.
     if (q && TORCH_LOSS_FUNCTIONS.includes(q)) return this.lossTerm(node, node, frame);
     const fnNode = node.child('function');
@@ -306,7 +322,8 @@ export class Expander {
     if (resolved) {
       if (resolved.fn.returns.length === 0) return EMPTY;
       const inner = this.flow.frameFor(node, resolved, frame);
-      return best(resolved.fn.returns.map((r) => this.expand(r, inner, depth + 1)));
+      // Returns on branches this call's arguments rule out (`if n_data is None: return …`) are not taken.
+      return alternatives(resolved.fn.returns.filter((r) => !this.flow.deadUnder(r, inner)).map((r) => this.expand(r, inner, depth + 1)));
     }
     if (fnNode?.type === 'attribute' && method && callee.receiver) return this.methodFallback(node, method, callee.receiver, frame);
     return EMPTY;
@@ -318,16 +335,13 @@ export class Expander {
     const overBatch = dim === null || dimValue === 0;
     const expanded = this.expand(inner, frame, depth + 1);
     if (expanded.terms.length > 0) {
-      return {
-        combos: expanded.combos,
-        terms: expanded.terms.map((t) => {
-          if (t.reduction !== null) return t;
-          if (t.kind === 'data') return overBatch ? { ...t, reduction: kind, reducer: node } : t;
-          // KL per weight: a sum totals it, a mean averages it over the weights.
-          if (kind === 'mean') return { ...t, reduction: 'mean', reducer: node };
-          return overBatch ? { ...t, reduction: 'sum', reducer: node } : t;
-        }),
-      };
+      return mapTerms(expanded, (t) => {
+        if (t.reduction !== null) return t;
+        if (t.kind === 'data') return overBatch ? { ...t, reduction: kind, reducer: node } : t;
+        // KL per weight: a sum totals it, a mean averages it over the weights.
+        if (kind === 'mean') return { ...t, reduction: 'mean', reducer: node };
+        return overBatch ? { ...t, reduction: 'sum', reducer: node } : t;
+      });
     }
     if (this.isGaussianKlShape(inner, frame)) return { terms: [{ kind: 'kl', core: node, reduction: kind === 'mean' ? 'mean' : overBatch ? 'sum' : null, scale: ONE, sign: 1, inputs: [], reducer: node, closedForm: true }], combos: [] };
     if (this.isDataElementwise(inner, frame)) return { terms: [{ kind: 'data', core: node, reduction: overBatch ? kind : null, scale: ONE, sign: 1, inputs: [{ node: inner, frame }] }], combos: [] };
@@ -352,6 +366,21 @@ export class Expander {
     return EMPTY;
   }
 
+  /** `torch.stack([layer.kl() for layer in ...])`: a stack of KL terms (to be summed) holds those KL terms; anything else is left alone. */
+  private stacked(node: SyntaxNode, frame: Frame | null, depth: number): Expansion {
+    const first = this.sem.argument(node, 0, 'tensors');
+    if (!first) return EMPTY;
+    const list = unwrapParens(first);
+    let inner: Expansion = EMPTY;
+    if (list.type === 'list' || list.type === 'tuple') inner = { terms: list.namedChildren.flatMap((c) => this.expand(c, frame, depth + 1).terms), combos: [] };
+    else if (list.type === 'list_comprehension' || list.type === 'generator_expression') {
+      const body = list.child('body');
+      inner = body ? this.expand(body, frame, depth + 1) : EMPTY;
+    }
+    if (inner.terms.length === 0 || inner.combos.length > 0 || !inner.terms.every((t) => t.kind === 'kl')) return EMPTY;
+    return inner;
+  }
+
   /** The sum of a comprehension: over modules it totals their KLs; over a counter (Monte Carlo samples) it is a constant factor. */
   private sumOver(comprehension: SyntaxNode, frame: Frame | null, depth: number): Expansion {
     const body = comprehension.child('body');
@@ -361,7 +390,7 @@ export class Expander {
     const iterable = clause?.child('right');
     if (!iterable || inner.terms.length === 0) return inner;
     const info = this.flow.iterable(iterable, frame);
-    if (info.kind === 'modules') return { ...inner, terms: inner.terms.map((t) => (t.kind === 'kl' && t.reduction === null ? { ...t, reduction: 'sum' } : t)) };
+    if (info.kind === 'modules') return mapTerms(inner, (t) => (t.kind === 'kl' && t.reduction === null ? { ...t, reduction: 'sum' } : t));
     if (info.kind === 'counter') {
       const rangeArgs = unwrapParens(iterable).child('arguments')?.namedChildren ?? [];
       const count = rangeArgs.length === 1 ? this.sem.fold(rangeArgs[0]!) : null;
@@ -425,7 +454,7 @@ export class Expander {
     const name = node.child('attribute')?.text;
     const object = node.child('object');
     if (!name || !object || this.flow.typeOf(object, frame)) return EMPTY;
-    return this.workspaceKlMember(name) ? { terms: [{ kind: 'kl', core: node, reduction: 'sum', scale: ONE, sign: 1, inputs: [] }], combos: [] } : EMPTY;
+    return this.workspaceKlMember(name, node) ? { terms: [{ kind: 'kl', core: node, reduction: 'sum', scale: ONE, sign: 1, inputs: [] }], combos: [] } : EMPTY;
   }
 
   /** A method on a receiver whose class is unknown or a library class: a KL method of a workspace module class, or a KL-named library method. */
@@ -433,36 +462,40 @@ export class Expander {
     const type = this.flow.typeOf(receiver, frame);
     const hasArgs = (node.child('arguments')?.namedChildren.length ?? 0) > 0;
     const kl: Expansion = { terms: [{ kind: 'kl', core: node, reduction: 'sum', scale: ONE, sign: 1, inputs: [] }], combos: [] };
-    if (!type) return this.workspaceKlMember(method) ? kl : EMPTY;
+    if (!type) return this.workspaceKlMember(method, node) ? kl : EMPTY;
     // A module whose method comes from a library base class: the name is the only hint left (weak, zero-argument only).
     const moduleLike = type.kind === 'instance' ? this.sem.isModuleClass(type.cls) : /^torch\.nn\.|^torchbnn\.|^blitz\.|^bayesian_torch\./.test(type.qualifiedName);
     if (moduleLike && !hasArgs && KL_METHOD_NAMES.has(method)) return kl;
     return EMPTY;
   }
 
-  /** True when some module class of the workspace has a method or attribute of this name that computes a KL. */
-  workspaceKlMember(name: string): boolean {
+  /**
+   * True when some module class of the program around a node (the files importing the node's file and the files they
+   * import) has a method or attribute of this name that computes a KL.
+   */
+  workspaceKlMember(name: string, at: SyntaxNode): boolean {
+    const from = this.sem.workspace.analysisOfNode(at)?.file.absPath ?? this.sem.analysis.file.absPath;
     const memo = this.sem.workspace.memoTable<string, boolean>('elbo-scale-mismatch:kl-members');
-    if (memo.has(name)) return memo.get(name)!;
-    memo.set(name, false);
+    const key = `${from}\u0000${name}`;
+    if (memo.has(key)) return memo.get(key)!;
+    memo.set(key, false);
+    const result = this.flow.programFiles(from).some((file) => this.fileKlMember(file, name));
+    memo.set(key, result);
+    return result;
+  }
+
+  /** True when a module class of one file has a KL-computing method or attribute of this name (looked up in the file's member index first). */
+  private fileKlMember(file: string, name: string): boolean {
+    if (!this.moduleMemberNames(file).has(name)) return false;
+    const memo = this.sem.workspace.memoTable<string, boolean>('elbo-scale-mismatch:file-kl-members');
+    const key = `${file}\u0000${name}`;
+    if (memo.has(key)) return memo.get(key)!;
+    memo.set(key, false);
     let result = false;
     const outer = this.scratch;
     this.scratch ??= new Map();
     try {
-      result = this.scanKlMembers(name);
-    } finally {
-      this.scratch = outer;
-    }
-    memo.set(name, result);
-    return result;
-  }
-
-  private scanKlMembers(name: string): boolean {
-    let result = false;
-    for (const file of this.sem.workspace.allFiles()) {
-      const analysis = this.sem.workspace.analysis(file.absPath);
-      if (!analysis) continue;
-      for (const cls of analysis.module.classes) {
+      for (const cls of this.sem.workspace.analysis(file)?.module.classes ?? []) {
         if (!this.sem.isModuleClass(cls)) continue;
         const method = cls.methods.get(name);
         if (method && method.returns.some((r) => this.expand(r, null).terms.some((t) => t.kind === 'kl'))) result = true;
@@ -471,9 +504,25 @@ export class Expander {
         }
         if (result) break;
       }
-      if (result) break;
+    } finally {
+      this.scratch = outer;
     }
+    memo.set(key, result);
     return result;
+  }
+
+  /** Names of the methods and attributes of a file's classes (computed once per file). */
+  private moduleMemberNames(file: string): Set<string> {
+    const memo = this.sem.workspace.memoTable<string, Set<string>>('elbo-scale-mismatch:member-names');
+    const cached = memo.get(file);
+    if (cached) return cached;
+    const names = new Set<string>();
+    for (const cls of this.sem.workspace.analysis(file)?.module.classes ?? []) {
+      for (const m of cls.methods.keys()) names.add(m);
+      for (const a of cls.attributes.keys()) names.add(a);
+    }
+    memo.set(file, names);
+    return names;
   }
 
   /**
@@ -487,7 +536,8 @@ export class Expander {
     let log = false;
     let square = false;
     let exp = false;
-    for (const n of descendants(node)) {
+    // The formula's parts may sit in names (`var_ratio = (sd / prior_sd) ** 2`, `sd = log_sd.exp()`).
+    for (const n of this.reachableNodes(node, frame)) {
       if (n.type === 'call') {
         const callee = this.sem.callee(n);
         const q = callee.qualifiedName ?? '';
@@ -536,8 +586,10 @@ export class Expander {
   }
 
   /** Whether an expression is computed from data (minibatches, model outputs) and/or from trainable parameters. */
-  leafClasses(exprs: SyntaxNode[], frame: Frame | null): LeafClasses {
+  leafClasses(exprs: SyntaxNode[], frame: Frame | null, depth = 0): LeafClasses {
     const out: LeafClasses = { data: false, param: false };
+    // Bounded: a model applied to its own output thousands of times must not overflow the stack.
+    if (depth > MAX_DEPTH) return out;
     const stack: { node: SyntaxNode; frame: Frame | null }[] = exprs.map((node) => ({ node, frame }));
     const seen = new Set<SyntaxNode>();
     let steps = 0;
@@ -556,6 +608,8 @@ export class Expander {
           for (const v of this.flow.values(node, f)) {
             if (v.binding) {
               if (v.binding.unpack) stack.push({ node: v.binding.unpack.from, frame: v.frame });
+              // A loop over listed tensors (`for mu, rho in ((self.w_mu, self.w_rho), ...)`): the listed tensors.
+              for (const e of this.flow.loopElements(v.binding, v.frame) ?? []) stack.push(e);
               continue;
             }
             if (v.node !== node) stack.push({ node: v.node, frame: v.frame });
@@ -565,7 +619,7 @@ export class Expander {
         case 'call': {
           const callee = this.sem.callee(node);
           const q = callee.qualifiedName ?? '';
-          if (q === 'torch.nn.Parameter' || q === 'torch.nn.parameter.Parameter' || q === 'pyro.param' || q === 'tensorflow.Variable' || callee.method === 'requires_grad_') {
+          if (q === 'torch.nn.Parameter' || q === 'torch.nn.parameter.Parameter' || q === 'pyro.param' || q === 'tensorflow.Variable' || callee.method === 'requires_grad_' || ((callee.method === 'parameters' || callee.method === 'named_parameters') && callee.receiver && this.flow.typeOf(callee.receiver, f)?.kind === 'instance')) {
             out.param = true;
             break;
           }
@@ -581,7 +635,7 @@ export class Expander {
           const resolved = this.flow.resolveCall(node, f);
           if (resolved && (resolved.fn.name === 'forward' || resolved.fn.name === 'call' || resolved.fn.name === '__call__') && (node.child('arguments')?.namedChildren.length ?? 0) > 0) {
             // A model applied to inputs: its output is data-dependent.
-            out.data = out.data || this.leafClasses((node.child('arguments')?.namedChildren ?? []).map((a) => (a.type === 'keyword_argument' ? (a.child('value') ?? a) : a)), f).data;
+            out.data = out.data || this.leafClasses((node.child('arguments')?.namedChildren ?? []).map((a) => (a.type === 'keyword_argument' ? (a.child('value') ?? a) : a)), f, depth + 1).data;
             if (!out.data) out.param = true;
             break;
           }
@@ -635,35 +689,61 @@ function has(e: Expansion, kind: Term['kind']): boolean {
 }
 
 function negate(e: Expansion): Expansion {
-  return { ...e, terms: e.terms.map((t) => ({ ...t, sign: (t.sign === 1 ? -1 : 1) as 1 | -1 })) };
+  return mapTerms(e, (t) => ({ ...t, sign: (t.sign === 1 ? -1 : 1) as 1 | -1 }));
 }
 
 function scaleBy(e: Expansion, s: Scale, at?: SyntaxNode): Expansion {
   const literal = !s.opaque && s.symbols.length === 0 && s.coef !== null && !s.schedule;
-  return {
-    ...e,
-    terms: e.terms.map((t) => {
-      // A per-example data term times an unknown tensor (one-hot targets, masks, class weights) stays per example.
-      if (s.opaque && t.reduction === null) return t;
-      // The ½ of a closed-form KL written in the same expression is part of the KL, not a weight on it.
-      if (t.closedForm && literal && at && at.contains(t.core) && t.scale.coef === 1 && t.scale.symbols.length === 0) return t;
-      return { ...t, scale: times(t.scale, s) };
-    }),
-  };
+  return mapTerms(e, (t) => {
+    // A per-example data term times an unknown tensor (one-hot targets, masks, class weights) stays per example.
+    if (s.opaque && t.reduction === null) return t;
+    // The ½ of a closed-form KL written in the same expression is part of the KL, not a weight on it.
+    if (t.closedForm && literal && at && at.contains(t.core) && t.scale.coef === 1 && t.scale.symbols.length === 0) return t;
+    return { ...t, scale: times(t.scale, s) };
+  });
 }
 
-/** The richest alternative: one that holds both a data term and a KL term, else the one with most terms. */
-function best(options: Expansion[]): Expansion {
-  let pick: Expansion = EMPTY;
-  let score = -1;
-  for (const o of options) {
-    const s = (o.combos.length > 0 ? 100 : 0) + o.terms.length;
-    if (s > score) {
-      pick = o;
-      score = s;
+/**
+ * The alternatives a value may take (the reaching definitions of a name, the branches of a conditional, the returns
+ * of a function), all kept: every combination of every alternative is judged on its own, and the terms of the
+ * alternatives are pooled (the same term reached along several paths counts once).
+ */
+function alternatives(options: Expansion[]): Expansion {
+  const nonEmpty = options.filter((o) => o.terms.length > 0 || o.combos.length > 0);
+  if (nonEmpty.length <= 1) return nonEmpty[0] ?? EMPTY;
+  const terms: Term[] = [];
+  const seenTerms = new Set<string>();
+  const combos: Combination[] = [];
+  const seenCombos = new Set<Combination>();
+  for (const o of nonEmpty) {
+    for (const t of o.terms) {
+      const key = termKey(t);
+      if (seenTerms.has(key)) continue;
+      seenTerms.add(key);
+      terms.push(t);
+    }
+    for (const c of o.combos) {
+      if (seenCombos.has(c)) continue;
+      seenCombos.add(c);
+      combos.push(c);
     }
   }
-  return pick;
+  return { terms, combos };
+}
+
+/** Numbers for syntax files, so that a node can be named in a key. */
+const fileIds = new WeakMap<object, number>();
+let nextFileId = 0;
+
+/** Identity of a term for pooling alternatives: its core, kind, reduction, sign and factor. */
+function termKey(t: Term): string {
+  const s = t.scale;
+  let file = fileIds.get(t.core.file);
+  if (file === undefined) {
+    file = nextFileId++;
+    fileIds.set(t.core.file, file);
+  }
+  return `${file}:${t.core.id}:${t.kind}:${t.reduction}:${t.sign}:${s.coef}:${s.dims.n}:${s.dims.b}:${s.dims.p}:${s.opaque}:${s.schedule}:${s.documented}`;
 }
 
 /** log q(w) − log p(w) (two log-densities of sampled weights with opposite signs) is a Monte Carlo KL estimate. */
@@ -676,10 +756,18 @@ function mergeLogDensities(terms: Term[], at: SyntaxNode): Term[] {
   return [...rest, { kind: 'kl', core: at, reduction, scale: positive[0]!.scale, sign: 1, inputs: [] }];
 }
 
-/** The operands of a chain of `+` / `-` (and unary minus), parentheses removed. */
+/**
+ * The operands of a chain of `+` / `-` (and unary minus), parentheses removed, in source order. Iterative: a sum of
+ * thousands of terms nests that deep.
+ */
 function additiveLeaves(node: SyntaxNode): SyntaxNode[] {
-  const n = unwrapParens(node);
-  if (n.type === 'binary_operator' && ['+', '-'].includes(n.child('operator')?.text ?? '')) return [...additiveLeaves(n.child('left')!), ...additiveLeaves(n.child('right')!)];
-  if (n.type === 'unary_operator') return additiveLeaves(n.child('argument') ?? n);
-  return [n];
+  const out: SyntaxNode[] = [];
+  const stack: SyntaxNode[] = [node];
+  while (stack.length > 0) {
+    const n = unwrapParens(stack.pop()!);
+    if (n.type === 'binary_operator' && ['+', '-'].includes(n.child('operator')?.text ?? '')) stack.push(n.child('right')!, n.child('left')!);
+    else if (n.type === 'unary_operator' && n.child('argument')) stack.push(n.child('argument')!);
+    else out.push(n);
+  }
+  return out;
 }

@@ -1,7 +1,7 @@
 // TensorFlow Probability side of elbo-scale-mismatch: Flipout / Reparameterization layers whose divergence function
 // is not divided by N, in a Keras model compiled with a mean-reduced loss and trained with `fit` (SOURCES.md §1.6).
 import { type ClassInfo, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
-import { descendants, type Flow, type Frame } from './flow';
+import { type Flow, type Frame } from './flow';
 import { ONE, over, type Reduction, type Scale, times } from './scale';
 
 const LAYER = /^(tensorflow_probability|tfp)(\.python)?\.layers\.((dense_variational|conv_variational)\.)?(Dense(Flipout|Reparameterization|LocalReparameterization)|Convolution[123]D(Flipout|Reparameterization))$/;
@@ -92,7 +92,9 @@ function divergenceScale(flow: Flow, fnExpr: SyntaxNode): Scale | null {
 }
 
 /** Splits `kl_divergence(q, p) * a / b` into the factor on the KL call. */
-function factorOnKl(flow: Flow, expr: SyntaxNode): Scale | null {
+function factorOnKl(flow: Flow, expr: SyntaxNode, depth = 0): Scale | null {
+  // Bounded: a product or quotient of thousands of factors must not overflow the stack.
+  if (depth > 16) return null;
   const sem = flow.sem;
   const node = unwrapParens(expr);
   if (node.type === 'call') {
@@ -104,13 +106,13 @@ function factorOnKl(flow: Flow, expr: SyntaxNode): Scale | null {
   const left = node.child('left')!;
   const right = node.child('right')!;
   if (op === '/') {
-    const inner = factorOnKl(flow, left);
+    const inner = factorOnKl(flow, left, depth + 1);
     return inner ? over(inner, flow.scaleOf(right, null)) : null;
   }
   if (op === '*') {
-    const l = factorOnKl(flow, left);
+    const l = factorOnKl(flow, left, depth + 1);
     if (l) return times(l, flow.scaleOf(right, null));
-    const r = factorOnKl(flow, right);
+    const r = factorOnKl(flow, right, depth + 1);
     if (r) return times(r, flow.scaleOf(left, null));
   }
   return null;
@@ -125,10 +127,9 @@ function trainingOf(flow: Flow, layer: SyntaxNode): { compile: SyntaxNode; fit: 
   let compile: SyntaxNode | null = null;
   let fit: SyntaxNode | null = null;
   for (const file of [...sem.workspace.dependentsOf(owner.file.absPath)].sort()) {
-    const analysis = sem.workspace.analysis(file);
-    if (!analysis) continue;
-    for (const node of analysis.syntax.nodes) {
-      if (node.type !== 'call') continue;
+    // The `.compile(...)` and `.fit(...)` calls of the file, from its call index (no walk of the whole file per layer).
+    const index = flow.callIndex(file);
+    for (const node of [...(index.byName.get('compile') ?? []), ...(index.byName.get('fit') ?? [])]) {
       const callee = sem.callee(node);
       if ((callee.method !== 'compile' && callee.method !== 'fit') || !callee.receiver) continue;
       if (!isModel(flow, callee.receiver, models)) continue;
@@ -155,12 +156,10 @@ function modelsOf(flow: Flow, layer: SyntaxNode): (SyntaxNode | ClassInfo)[] {
     const assign = holder?.type === 'assignment' ? holder : null;
     const target = assign?.child('left');
     if (target?.type === 'identifier') {
-      const module = sem.moduleOf(layer);
-      for (const n of module.syntax.nodes) {
-        if (n.type === 'call' && sem.isCallTo(n, SEQUENTIAL)) {
-          const arg = sem.argument(n, 0, 'layers');
-          if (arg && flow.values(arg, null).some((v) => v.node === parent)) out.push(n);
-        }
+      const file = sem.workspace.analysisOfNode(layer)?.file.absPath ?? sem.analysis.file.absPath;
+      for (const n of kerasModelCalls(flow, file).sequential) {
+        const arg = sem.argument(n, 0, 'layers');
+        if (arg && flow.values(arg, null).some((v) => v.node === parent)) out.push(n);
       }
     }
   }
@@ -172,8 +171,9 @@ function modelsOf(flow: Flow, layer: SyntaxNode): (SyntaxNode | ClassInfo)[] {
   // Functional: layer(...)(x) feeding the outputs of tf.keras.Model(inputs, outputs).
   if (parent?.type === 'call' && layer.field === 'function') {
     const scopeNode = sem.moduleOf(layer).scopeOf(layer).node;
-    for (const n of descendants(scopeNode)) {
-      if (n.type !== 'call' || !sem.isCallTo(n, MODEL)) continue;
+    const file = sem.workspace.analysisOfNode(layer)?.file.absPath ?? sem.analysis.file.absPath;
+    for (const n of kerasModelCalls(flow, file).functional) {
+      if (!scopeNode.contains(n)) continue;
       const outputs = sem.argument(n, 1, 'outputs');
       if (outputs && reaches(flow, outputs, parent)) out.push(n);
     }
@@ -181,6 +181,20 @@ function modelsOf(flow: Flow, layer: SyntaxNode): (SyntaxNode | ClassInfo)[] {
   // Subclassed model: self.x = layer(...) in a Keras Model subclass.
   const cls = sem.moduleOf(layer).enclosingClass(layer);
   if (cls && sem.isSubclassOf(cls, MODEL)) out.push(cls);
+  return out;
+}
+
+/** The `Sequential(...)` and functional `Model(...)` constructions of a file (also under aliases), found once per file. */
+function kerasModelCalls(flow: Flow, file: string): { sequential: SyntaxNode[]; functional: SyntaxNode[] } {
+  const memo = flow.sem.workspace.memoTable<string, { sequential: SyntaxNode[]; functional: SyntaxNode[] }>('elbo-scale-mismatch:keras-models');
+  const cached = memo.get(file);
+  if (cached) return cached;
+  const out = { sequential: [] as SyntaxNode[], functional: [] as SyntaxNode[] };
+  for (const n of flow.callIndex(file).all) {
+    if (flow.sem.isCallTo(n, SEQUENTIAL)) out.sequential.push(n);
+    else if (flow.sem.isCallTo(n, MODEL)) out.functional.push(n);
+  }
+  memo.set(file, out);
   return out;
 }
 

@@ -109,8 +109,8 @@ function verdictsOfRoot(flow: Flow, expander: Expander, root: SyntaxNode): Verdi
   const expansion = expander.expand(root, null);
   const out: Verdict[] = [];
   for (const combo of expansion.combos) {
-    const data = expansion.terms.filter((t) => t.kind === 'data' && t.reduction !== null && combo.dataCores.includes(t.core));
-    const kls = expansion.terms.filter((t) => t.kind === 'kl' && t.reduction !== null && combo.klCores.includes(t.core));
+    const data = combo.data.filter((t) => t.reduction !== null);
+    const kls = combo.kl.filter((t) => t.reduction !== null);
     if (data.length === 0 || kls.length === 0) continue;
     out.push(...judgeCombination(flow, root, combo, data, kls));
   }
@@ -131,22 +131,39 @@ function judgeCombination(flow: Flow, root: SyntaxNode, combo: Combination, data
   const regime = regimeOf(flow, data, root, loader);
   const out: Verdict[] = [];
   const seen = new Set<string>();
-  const weights = new Set(kls.map((k) => `${k.reduction}:${k.scale.dims.n}:${k.scale.dims.b}:${k.scale.coef}:${k.scale.opaque}`));
+  const weightKey = (k: Term) => `${k.reduction}:${k.scale.dims.n}:${k.scale.dims.b}:${k.scale.coef}:${k.scale.opaque}`;
+  const weights = new Set(kls.map(weightKey));
+  // The same KL reaching this `+` with different weights comes from alternative definitions (branches): it is
+  // judged wrong only when it is wrong along every one of them.
+  const quietCores = new Set<SyntaxNode>();
+  const firing: { kl: Term; verdict: Verdict }[] = [];
+  // N for the numbers: the loader's dataset when it folds; else an expression in scope, which must be read off this
+  // loader's data (not a name alone) when the loader is known, since a name may count some other data.
+  const knownLoader = loader !== null && flow.loaderSources(loader).length > 0;
+  const found = findInScope(flow, combo.node, 'N', loader);
+  const inScopeN = found && (!knownLoader || found.strong) ? found.value : null;
   for (const kl of kls) {
     const loaderN = loader ? flow.loaderDatasetLength(loader) : null;
     const literalRead = readLiteralAs(over(kl.scale, d.scale), { n: loaderN, b: loader?.batchSize ?? null });
     const klWeight = times(literalRead, d.scale);
     const klScale = kl.reduction === 'mean' ? over(klWeight, symbol({ symbol: 'P', text: 'P', value: null, strong: true })) : klWeight;
     const relative = relativeKlWeight({ data: d.scale, reduction: d.reduction!, kl: klScale });
-    const n = quantity(relative, 'N', loaderN ?? findInScope(flow, combo.node, 'N', loader)?.value ?? null, null);
+    const n = quantity(relative, 'N', loaderN ?? inScopeN ?? null, null);
     const b = quantity(relative, 'B', loader?.batchSize ?? null, loader?.batchSizeText ?? null);
     const judgement = judge({ relative, regime, n: n.value, b: b.value });
-    if (!judgement.fire) continue;
+    if (!judgement.fire) {
+      quietCores.add(kl.core);
+      continue;
+    }
+    firing.push({ kl, verdict: { root, combo, data: d, kl, reduction: d.reduction!, relative, klRelative: literalRead.dims, uniformKl: weights.size === 1, dims: judgement.dims, regime, loader, n, b, numeric: judgement.numeric } });
+  }
+  for (const { kl, verdict } of firing) {
+    if (quietCores.has(kl.core) && kls.some((other) => other.core === kl.core && weightKey(other) !== weightKey(kl))) continue;
     // Several KL terms with the same weight (one per layer) make one finding.
-    const key = `${judgement.dims.n}:${judgement.dims.b}:${judgement.dims.p}:${relative.coef}`;
+    const key = `${verdict.dims.n}:${verdict.dims.b}:${verdict.dims.p}:${verdict.relative.coef}`;
     if (seen.has(key)) continue;
     seen.add(key);
-    out.push({ root, combo, data: d, kl, reduction: d.reduction!, relative, klRelative: literalRead.dims, uniformKl: weights.size === 1, dims: judgement.dims, regime, loader, n, b, numeric: judgement.numeric });
+    out.push(verdict);
   }
   return out;
 }
@@ -208,10 +225,13 @@ export function verdictsForFile(flow: Flow, expander: Expander, absPath: string)
       for (const v of verdictsOfRoot(flow, expander, root)) {
         const owner = sem.workspace.analysisOfNode(v.combo.node);
         if (!owner || owner.file.absPath !== absPath) continue;
-        const key = `${v.combo.node.start}:${v.combo.node.end}:${v.dims.n}:${v.dims.b}:${v.dims.p}`;
+        // A file analysed again after the workspace evicted it has new nodes for the same text (same preorder ids).
+        const node = v.combo.node.file === sem.analysis.syntax ? v.combo.node : sem.analysis.syntax.nodes[v.combo.node.id];
+        if (!node || node.type !== v.combo.node.type || node.start !== v.combo.node.start || node.end !== v.combo.node.end) continue;
+        const key = `${node.start}:${node.end}:${v.dims.n}:${v.dims.b}:${v.dims.p}`;
         if (seen.has(key)) continue;
         seen.add(key);
-        out.push(v);
+        out.push(node === v.combo.node ? v : { ...v, combo: { ...v.combo, node } });
       }
     }
   }

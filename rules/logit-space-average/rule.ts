@@ -436,7 +436,11 @@ function stackedSamples(sem: Semantics, operand: SyntaxNode, axis: number, depth
   const node = unwrapParens(operand);
   const origins = valueOrigins(sem, node);
   // numpy averages a Python list of arrays as if it were stacked along a new first axis.
-  if (axis === 0 && origins.some((o) => ['list', 'list_comprehension'].includes(unwrapParens(o).type))) {
+  const returnsList = (o: SyntaxNode): boolean => {
+    const callee = o.type === 'call' ? sem.callee(o) : null;
+    return callee?.symbol?.kind === 'function' && returnedElements(sem, callee.symbol.fn) !== null;
+  };
+  if (axis === 0 && origins.some((o) => ['list', 'list_comprehension'].includes(unwrapParens(o).type) || returnsList(unwrapParens(o)))) {
     const samples = listSamples(sem, node, depth + 1);
     if (samples) return { ...samples, foreignArrays: true };
   }
@@ -492,10 +496,59 @@ function stackedSamples(sem: Semantics, operand: SyntaxNode, axis: number, depth
       if (inner) return inner;
       continue;
     }
+    // A workspace helper that returns a stack of samples (`def member_outputs(ens, x): return torch.stack([...])`).
+    if (callee.symbol?.kind === 'function') {
+      const returned = returnedStack(sem, callee.symbol.fn, axis);
+      if (returned) return { ...returned, models: mergeRefs([returned.models]) };
+    }
     const vectorised = vectorisedSamples(sem, o, axis);
     if (vectorised) return vectorised;
   }
   return null;
+}
+
+/**
+ * The function summary "returns a stack of samples along `axis`": the sample set of the first of its returns that
+ * is one, decided inside the function (its parameters stand for whatever the callers pass), memoised per function.
+ */
+function returnedStack(sem: Semantics, fn: FunctionInfo, axis: number): SampleSet | null {
+  const memo = sem.workspace.memoTable<FunctionInfo, Map<number, SampleSet | null>>('logit-space-average:returned-stack');
+  let perAxis = memo.get(fn);
+  if (!perAxis) {
+    perAxis = new Map();
+    memo.set(fn, perAxis);
+  }
+  if (perAxis.has(axis)) return perAxis.get(axis)!;
+  // Recursion (a helper that returns its own result) ends here with "no stack".
+  perAxis.set(axis, null);
+  let found: SampleSet | null = null;
+  for (const r of fn.returns) {
+    const node = unwrapParens(r);
+    if (node.type === 'tuple' || node.type === 'expression_list') continue;
+    found = stackedSamples(sem, node, axis, 0);
+    if (found) break;
+  }
+  perAxis.set(axis, found);
+  return found;
+}
+
+/** The function summary "returns a list of samples": the elements of every return, memoised per function (null when any return is not a list of samples). */
+function returnedElements(sem: Semantics, fn: FunctionInfo): { element: SyntaxNode; loop: Loop | null }[] | null {
+  const memo = sem.workspace.memoTable<FunctionInfo, { element: SyntaxNode; loop: Loop | null }[] | null>('logit-space-average:returned-list');
+  if (memo.has(fn)) return memo.get(fn)!;
+  memo.set(fn, null);
+  const out: { element: SyntaxNode; loop: Loop | null }[] = [];
+  for (const r of fn.returns) {
+    const parts = listElements(sem, r, 0);
+    if (!parts) {
+      out.length = 0;
+      break;
+    }
+    out.push(...parts);
+  }
+  const result = fn.returns.length > 0 && out.length > 0 ? out : null;
+  memo.set(fn, result);
+  return result;
 }
 
 /** A preallocated tensor filled by a loop, one sample per index: `preds = torch.zeros(T, B, C)`; `preds[t] = model(x)`. */
@@ -520,68 +573,249 @@ function filledSamples(sem: Semantics, factory: SyntaxNode): SampleSet | null {
   return parts.length ? elementSamples(sem, parts) : null;
 }
 
+/** A tensor of T copies of one input: along a new axis, or folded into the batch axis (T-major or batch-major). */
+interface Tiling {
+  /** The axis that holds the copies (for folded tilings, the axis the copies take once the output is unfolded). */
+  axis: number;
+  count: SyntaxNode | null;
+  /** `repeat`: the batch repeated T times (T-major); `interleave`: each row repeated T times (batch-major). */
+  folded: 'repeat' | 'interleave' | null;
+}
+
+/** Methods that keep a tensor's shape and values (looked through on the way from the tiling to the model). */
+const SHAPE_KEEPING_METHODS = new Set(['contiguous', 'to', 'float', 'double', 'half', 'cuda', 'cpu', 'detach', 'clone', 'requires_grad_', 'type', 'type_as']);
+
 /**
- * A model called once on an input with a leading sample axis: `model(x.unsqueeze(0).expand(T, ...))`, or
- * `model(x.repeat(T, 1)).view(T, ...)`.
+ * A model called once on T copies of its input, with the copies along an axis of the output:
+ * `model(x.unsqueeze(0).expand(T, *x.shape))`, `model(x[None].repeat(T, 1, 1))`, `model(torch.stack([x] * T))`,
+ * `model(einops.repeat(x, 'b d -> t b d', t=T))`, or a batch-folded call unfolded afterwards,
+ * `model(x.repeat(T, 1)).view(T, B, -1)` and `model(x.repeat_interleave(T, dim=0)).view(B, T, -1)`.
  */
 function vectorisedSamples(sem: Semantics, call: SyntaxNode, axis: number): SampleSet | null {
-  if (axis !== 0) return null;
   const callee = sem.callee(call);
-  // `model(x.repeat(T, 1)).view(T, B, C)`: the copies of the batch are folded back into a leading axis.
-  if ((callee.method === 'view' || callee.method === 'reshape') && callee.receiver) {
-    const first = sem.argument(call, 0);
-    if (!first) return null;
-    for (const origin of valueOrigins(sem, callee.receiver)) {
+  // The copies were folded into the batch axis for the call, and the output is unfolded into (T, B, ...) or (B, T, ...).
+  const unfolded = unfoldedSizes(sem, call);
+  if (unfolded) {
+    for (const origin of valueOrigins(sem, callee.receiver!)) {
       const o = unwrapParens(origin);
-      if (o.type !== 'call') continue;
+      if (o.type !== 'call' || !isModelLikeCall(sem, o)) continue;
       const input = modelInput(sem, o);
-      if (!input) continue;
-      for (const inOrigin of valueOrigins(sem, input)) {
-        const r = unwrapParens(inOrigin);
-        if (r.type !== 'call') continue;
-        const rc = sem.callee(r);
-        const copies = sem.argument(r, 0);
-        if (rc.method === 'repeat' && copies && copies.text === first.text && !isNewAxis(sem, rc.receiver)) return modelSample(sem, o, 'vectorised', copies);
-      }
+      const tiling = input ? tilingOf(sem, input, 0) : null;
+      if (!tiling?.folded || !tiling.count || tiling.axis !== axis) continue;
+      const size = unfolded[tiling.axis];
+      if (size && sameCount(sem, size, tiling.count)) return modelSample(sem, o, 'vectorised', tiling.count);
     }
     return null;
   }
+  if (!isModelLikeCall(sem, call)) return null;
   const input = modelInput(sem, call);
-  if (!input) return null;
-  for (const inOrigin of valueOrigins(sem, input)) {
-    const r = unwrapParens(inOrigin);
-    if (r.type !== 'call') continue;
-    const rc = sem.callee(r);
-    if ((rc.method === 'expand' || rc.method === 'repeat') && rc.receiver) {
-      const copies = sem.argument(r, 0);
-      if (!copies) continue;
-      const splat = (r.child('arguments')?.namedChildren ?? []).some((a) => a.type === 'list_splat');
-      if (isNewAxis(sem, rc.receiver) || (rc.method === 'expand' && splat)) return modelSample(sem, call, 'vectorised', copies);
+  const tiling = input ? tilingOf(sem, input, 0) : null;
+  if (!tiling || tiling.folded || tiling.axis !== axis) return null;
+  return modelSample(sem, call, 'vectorised', tiling.count);
+}
+
+/** The sizes a reshape of a batch-folded output unfolds its first axis into: `.view(T, B, -1)`, `.reshape(...)`, `.unflatten(0, (T, B))`. */
+function unfoldedSizes(sem: Semantics, call: SyntaxNode): SyntaxNode[] | null {
+  const callee = sem.callee(call);
+  if (!callee.receiver || callee.symbol) return null;
+  if (callee.method === 'view' || callee.method === 'reshape') {
+    const args = positionalArguments(call);
+    if (args.length === 1 && ['tuple', 'list'].includes(unwrapParens(args[0]!).type)) return unwrapParens(args[0]!).namedChildren;
+    return args.length >= 2 ? args : null;
+  }
+  if (callee.method === 'unflatten') {
+    const dim = sem.argument(call, 0, 'dim');
+    const sizes = sem.argument(call, 1, 'sizes');
+    if (!dim || sem.fold(dim) !== 0 || !sizes || !['tuple', 'list'].includes(unwrapParens(sizes).type)) return null;
+    return unwrapParens(sizes).namedChildren;
+  }
+  return null;
+}
+
+/** True for a call that may be a model (a module, a workspace function or method), not a library function such as `torch.relu`. */
+function isModelLikeCall(sem: Semantics, call: SyntaxNode): boolean {
+  const callee = sem.callee(call);
+  if (callee.qualifiedName && (!callee.symbol || callee.symbol.kind === 'external') && /^[a-z_]/.test(callee.qualifiedName.split('.').pop() ?? '')) return false;
+  if (callee.method && callee.receiver && !callee.symbol && (PASS_METHODS.has(callee.method) || SHAPE_KEEPING_METHODS.has(callee.method) || /^(expand|expand_as|repeat|repeat_interleave|tile|mean|nanmean|sum|softmax|log_softmax|sigmoid)$/.test(callee.method))) return false;
+  return positionalArguments(call).length > 0;
+}
+
+/** The copies a value is made of, when it is T copies of one tensor (followed through names and shape-keeping methods). */
+function tilingOf(sem: Semantics, expr: SyntaxNode, depth: number): Tiling | null {
+  if (depth > MAX_DEPTH) return null;
+  for (const origin of valueOrigins(sem, expr)) {
+    const o = unwrapParens(origin);
+    if (o.type !== 'call') continue;
+    const callee = sem.callee(o);
+    const q = callee.qualifiedName;
+    const method = callee.receiver && !callee.symbol && !q ? callee.method : null;
+    if (method && SHAPE_KEEPING_METHODS.has(method)) {
+      const inner = tilingOf(sem, callee.receiver!, depth + 1);
+      if (inner) return inner;
+      continue;
+    }
+    // A tiling along a new axis flattened into the batch axis: `xs.reshape(T * B, -1)`, `xs.flatten(0, 1)`.
+    if (method === 'view' || method === 'reshape' || method === 'flatten') {
+      const inner = tilingOf(sem, callee.receiver!, depth + 1);
+      if (inner && !inner.folded && (inner.axis === 0 || inner.axis === 1)) return { axis: inner.axis, count: inner.count, folded: inner.axis === 0 ? 'repeat' : 'interleave' };
+      continue;
+    }
+    const tiled = method ? methodTiling(sem, o, method, callee.receiver!) : q ? functionTiling(sem, o, q) : null;
+    if (tiled) return tiled;
+  }
+  return null;
+}
+
+/** `R.expand(...)`, `R.repeat(...)`, `R.tile(...)`, `R.expand_as(Y)`, `R.repeat_interleave(T, dim=d)` as a tiling. */
+function methodTiling(sem: Semantics, call: SyntaxNode, method: string, receiver: SyntaxNode): Tiling | null {
+  if (!['expand', 'repeat', 'tile', 'expand_as', 'repeat_interleave'].includes(method)) return null;
+  let args = positionalArguments(call);
+  if (args.length === 1 && ['tuple', 'list'].includes(unwrapParens(args[0]!).type) && method !== 'repeat_interleave') args = unwrapParens(args[0]!).namedChildren;
+  const at = (index: number): SyntaxNode | null => {
+    for (let i = 0; i <= index; i++) if (!args[i] || args[i]!.type === 'list_splat') return null;
+    return args[index]!;
+  };
+  const newAxis = newAxisIndex(sem, receiver);
+  if (method === 'repeat_interleave') {
+    const count = sem.argument(call, 0, 'repeats');
+    const dimNode = sem.argument(call, 1, 'dim');
+    const dim = dimNode ? sem.fold(dimNode) : null;
+    if (!count || typeof dim !== 'number') return null;
+    if (newAxis !== null) return dim === newAxis ? { axis: newAxis, count, folded: null } : null;
+    return dim === 0 ? { axis: 1, count, folded: 'interleave' } : null;
+  }
+  if (newAxis !== null) {
+    if (method === 'expand_as') return { axis: newAxis, count: null, folded: null };
+    const count = at(newAxis);
+    if (args.some((a, i) => a.type === 'list_splat' && i <= newAxis)) return { axis: newAxis, count: null, folded: null };
+    return count && sem.fold(count) !== 1 ? { axis: newAxis, count, folded: null } : null;
+  }
+  const first = at(0);
+  if (!first || sem.fold(first) === 1) return null;
+  // `x.expand(T, *x.shape)`: more sizes than the tensor has axes, so the first is a new leading axis.
+  if (method === 'expand' && args[1]?.type === 'list_splat' && isShapeOf(sem, args[1]!)) return { axis: 0, count: first, folded: null };
+  // `x.repeat(T, 1)`, `x.tile((T, 1))`: the batch repeated T times along the batch axis.
+  if ((method === 'repeat' || method === 'tile') && args.length >= 2 && args.slice(1).every((a) => a.type !== 'list_splat' && sem.fold(a) === 1)) return { axis: 0, count: first, folded: 'repeat' };
+  return null;
+}
+
+/** Tilings made by library functions: `torch.stack([x] * T)`, `torch.repeat_interleave(x, T, dim=0)`, `einops.repeat(x, 'b d -> t b d', t=T)`. */
+function functionTiling(sem: Semantics, call: SyntaxNode, q: string): Tiling | null {
+  if (q === 'torch.stack') {
+    const list = sem.argument(call, 0, 'tensors');
+    const dimNode = sem.argument(call, 1, 'dim');
+    const dim = dimNode ? sem.fold(dimNode) : 0;
+    if (!list || typeof dim !== 'number' || dim < 0) return null;
+    const count = copiesOfOne(sem, list);
+    return count ? { axis: dim, count, folded: null } : null;
+  }
+  if (q === 'torch.repeat_interleave') {
+    const input = sem.argument(call, 0, 'input');
+    const count = sem.argument(call, 1, 'repeats');
+    const dimNode = sem.argument(call, 2, 'dim');
+    if (!input || !count || !dimNode) return null;
+    const dim = sem.fold(dimNode);
+    const newAxis = newAxisIndex(sem, input);
+    if (newAxis !== null) return dim === newAxis ? { axis: newAxis, count, folded: null } : null;
+    return dim === 0 ? { axis: 1, count, folded: 'interleave' } : null;
+  }
+  if (q === 'einops.repeat') return einopsTiling(sem, call);
+  return null;
+}
+
+/** `[x] * T`, `T * [x]`, `[x for _ in range(T)]` (the element not depending on the loop): T. */
+function copiesOfOne(sem: Semantics, list: SyntaxNode): SyntaxNode | null {
+  const node = unwrapParens(list);
+  if (node.type === 'binary_operator' && node.child('operator')?.text === '*') {
+    const left = unwrapParens(node.child('left')!);
+    const right = unwrapParens(node.child('right')!);
+    for (const [items, count] of [
+      [left, right],
+      [right, left],
+    ] as const) {
+      if ((items.type === 'list' || items.type === 'tuple') && items.namedChildren.length === 1 && items.namedChildren[0]!.type !== 'list_splat' && sem.fold(count) !== 1) return count;
+    }
+    return null;
+  }
+  if (node.type === 'list_comprehension' || node.type === 'generator_expression') {
+    const clauses = node.children.filter((c) => c.type === 'for_in_clause');
+    const body = node.child('body');
+    if (clauses.length !== 1 || !body || node.children.some((c) => c.type === 'if_clause')) return null;
+    const loop = comprehensionLoop(node, clauses[0]!);
+    const b = unwrapParens(body);
+    // Only the input itself, not a call on it (a list of model calls is a stack of samples, handled elsewhere).
+    if ((b.type !== 'identifier' && b.type !== 'attribute') || dependsOnLoop(sem, b, loop)) return null;
+    return rangeCount(sem, loop.iterable);
+  }
+  return null;
+}
+
+/** `einops.repeat(x, 'b d -> t b d', t=T)`: one new axis on the output side, standing alone or first in a group with the batch axis. */
+function einopsTiling(sem: Semantics, call: SyntaxNode): Tiling | null {
+  const patternNode = sem.argument(call, 1, 'pattern');
+  const pattern = patternNode ? sem.fold(patternNode) : null;
+  if (typeof pattern !== 'string' || !pattern.includes('->')) return null;
+  const [lhs, rhs] = pattern.split('->') as [string, string];
+  const inputAxes = new Set(lhs.replace(/[()]/g, ' ').split(/\s+/).filter(Boolean));
+  const groups = (rhs.match(/\([^)]*\)|\S+/g) ?? []).map((g) => g.replace(/[()]/g, ' ').split(/\s+/).filter(Boolean));
+  const fresh = groups.flat().filter((a) => !inputAxes.has(a) && a !== '1' && a !== '...' && !/^\d+$/.test(a));
+  if (fresh.length !== 1) return null;
+  const name = fresh[0]!;
+  const count = sem.argument(call, 99, name);
+  if (!count) return null;
+  const index = groups.findIndex((g) => g.includes(name));
+  if (groups.slice(0, index).some((g) => g.includes('...'))) return null;
+  const group = groups[index]!;
+  if (group.length === 1) return { axis: index, count, folded: null };
+  if (index !== 0 || group.length !== 2) return null;
+  return { axis: group[0] === name ? 0 : 1, count, folded: group[0] === name ? 'repeat' : 'interleave' };
+}
+
+/** The axis at which an expression adds an axis of length one (`x.unsqueeze(d)`, `x[None]`, `x[:, None]`), or null. */
+function newAxisIndex(sem: Semantics, expr: SyntaxNode): number | null {
+  for (const origin of valueOrigins(sem, expr)) {
+    const o = unwrapParens(origin);
+    if (o.type === 'call') {
+      const c = sem.callee(o);
+      const dim = c.method === 'unsqueeze' && !c.qualifiedName ? sem.argument(o, 0, 'dim') : c.qualifiedName === 'torch.unsqueeze' ? sem.argument(o, 1, 'dim') : null;
+      const d = dim ? sem.fold(dim) : null;
+      if (typeof d === 'number' && Number.isInteger(d) && d >= 0) return d;
+      // `x.view(1, *x.shape)`, `x.reshape(1, *x.shape)`.
+      if ((c.method === 'view' || c.method === 'reshape') && !c.qualifiedName) {
+        const args = positionalArguments(o);
+        if (args.length === 2 && sem.fold(args[0]!) === 1 && args[1]!.type === 'list_splat' && isShapeOf(sem, args[1]!)) return 0;
+      }
+    }
+    if (o.type === 'subscript') {
+      const index = o.childrenOf('subscript');
+      const at = index.findIndex((i) => i.type === 'none');
+      if (at >= 0 && index.slice(0, at).every((i) => i.type === 'slice' && i.namedChildren.length === 0)) return at;
     }
   }
   return null;
 }
 
-/** True when an expression adds a leading axis of length one (`x.unsqueeze(0)`, `x[None]`, `x[None, ...]`). */
-function isNewAxis(sem: Semantics, expr: SyntaxNode | null): boolean {
-  if (!expr) return false;
-  for (const origin of valueOrigins(sem, expr)) {
-    const o = unwrapParens(origin);
-    if (o.type === 'call') {
-      const c = sem.callee(o);
-      const dim = sem.argument(o, 0, 'dim');
-      if (c.method === 'unsqueeze' && dim && sem.fold(dim) === 0) return true;
-      if (c.qualifiedName === 'torch.unsqueeze') {
-        const d = sem.argument(o, 1, 'dim');
-        if (d && sem.fold(d) === 0) return true;
-      }
-    }
-    if (o.type === 'subscript') {
-      const first = o.childrenOf('subscript')[0];
-      if (first?.type === 'none') return true;
-    }
-  }
+/** True for `*x.shape` / `*x.size()` (a splat of a tensor's sizes). */
+function isShapeOf(sem: Semantics, splat: SyntaxNode): boolean {
+  const inner = splat.namedChildren[0];
+  if (!inner) return false;
+  const n = unwrapParens(inner);
+  if (n.type === 'attribute') return n.child('attribute')?.text === 'shape';
+  if (n.type === 'call') return sem.callee(n).method === 'size' && positionalArguments(n).length === 0;
   return false;
+}
+
+/** True when two count expressions are the same count (the same text, or the same folded number). */
+function sameCount(sem: Semantics, a: SyntaxNode, b: SyntaxNode): boolean {
+  if (unwrapParens(a).text.replace(/\s+/g, '') === unwrapParens(b).text.replace(/\s+/g, '')) return true;
+  const x = sem.fold(a);
+  const y = sem.fold(b);
+  return typeof x === 'number' && x === y;
+}
+
+/** The positional arguments of a call, splats included, in order. */
+function positionalArguments(call: SyntaxNode): SyntaxNode[] {
+  return (call.child('arguments')?.namedChildren ?? []).filter((a) => a.type !== 'keyword_argument' && a.type !== 'dictionary_splat');
 }
 
 /** The first positional argument of a call that is not a parameter set (`model.apply(params, x)` → x). */
@@ -622,6 +856,11 @@ function listElements(sem: Semantics, list: SyntaxNode, depth: number): { elemen
     const elements = node.namedChildren;
     if (elements.length < 2 || elements.some((e) => e.type === 'list_splat')) return null;
     return elements.map((element) => ({ element, loop: null }));
+  }
+  if (node.type === 'call') {
+    // A workspace helper that returns a list of samples.
+    const callee = sem.callee(node);
+    return callee.symbol?.kind === 'function' ? returnedElements(sem, callee.symbol.fn) : null;
   }
   if (node.type !== 'identifier') return null;
   const out: { element: SyntaxNode; loop: Loop | null }[] = [];
@@ -952,7 +1191,18 @@ function memberExpressions(sem: Semantics, expr: SyntaxNode, depth: number): Syn
         if (arg) {
           const inner = memberExpressions(sem, arg, depth + 1);
           if (inner) out.push(...inner);
+        } else {
+          // `members = nn.ModuleList()` filled by `members.append(...)` in a loop.
+          const binding = bindingOfValue(sem, o);
+          const appended = binding ? appendedElements(sem, binding) : null;
+          if (appended) out.push(...appended.map((a) => a.element));
         }
+        continue;
+      }
+      // A workspace factory that returns the collection of members.
+      const callee = sem.callee(o);
+      if (callee.symbol?.kind === 'function') {
+        for (const r of callee.symbol.fn.returns) out.push(...(memberExpressions(sem, r, depth + 1) ?? []));
         continue;
       }
     }
@@ -1022,7 +1272,12 @@ function moduleValueKind(sem: Semantics, expr: SyntaxNode, depth: number, args: 
       else {
         // An unannotated parameter: what the callers pass in (resolved across the workspace).
         const passed = callerArguments(sem, origin.parameter);
-        kinds.push(passed.length ? combine(passed.map((a) => moduleValueKind(sem, a, depth + 2))) : UNKNOWN);
+        if (passed.length) kinds.push(combine(passed.map((a) => moduleValueKind(sem, a, depth + 2))));
+        else {
+          // No call binds it: the model is one of the module classes its file defines or imports, when it has any.
+          const candidates = unboundModelCandidates(sem, origin.parameter);
+          kinds.push(candidates.length ? combine(candidates.map((c) => classKind(sem, c, depth + 2))) : UNKNOWN);
+        }
       }
       continue;
     }
@@ -1031,6 +1286,36 @@ function moduleValueKind(sem: Semantics, expr: SyntaxNode, depth: number, args: 
     else kinds.push(UNKNOWN);
   }
   return combine(kinds);
+}
+
+/**
+ * The model an unannotated parameter that no call in the workspace binds stands for: the one neural-network module
+ * class its file defines or imports from the workspace (a module of helpers works on the model it knows), or none
+ * when the file has several or none. Memoised per file.
+ */
+function unboundModelCandidates(sem: Semantics, param: Binding): ClassInfo[] {
+  if (param.kind !== 'param' || param.annotation) return [];
+  const module = sem.moduleOf(param.node);
+  const memo = sem.workspace.memoTable<SyntaxNode, ClassInfo[]>('logit-space-average:file-models');
+  const cached = memo.get(module.syntax.root);
+  if (cached) return cached;
+  const found: ClassInfo[] = [];
+  const fromPath = (sem.workspace.analysisOfNode(param.node) ?? sem.analysis).file.absPath;
+  for (const bindings of module.moduleScope.bindings.values()) {
+    for (const b of bindings) {
+      let cls: ClassInfo | null = null;
+      if (b.kind === 'class' && b.definition) cls = module.classByNode.get(b.definition.id) ?? null;
+      else if (b.kind === 'import' && b.qualifiedName) {
+        const symbol = sem.symbolOfQualifiedName(b.qualifiedName, fromPath);
+        if (symbol?.kind === 'class') cls = symbol.cls;
+      }
+      if (cls && !found.includes(cls) && sem.isModuleClass(cls)) found.push(cls);
+    }
+  }
+  // Several candidates: which one a helper receives is not known, so nothing is assumed.
+  const out = found.length === 1 ? found : [];
+  memo.set(module.syntax.root, out);
+  return out;
 }
 
 /** The arguments the workspace's calls pass for a function parameter. */
@@ -1583,7 +1868,9 @@ function modelRefOf(sem: Semantics, expr: SyntaxNode, depth = 0): ModelRef {
     for (const b of sem.bindings(root)) {
       ref.bindings.add(b);
       if (b.kind === 'param' && ref.classes.size === 0 && depth < 3) {
-        for (const arg of callerArguments(sem, b)) for (const c of modelRefOf(sem, arg, depth + 1).classes) ref.classes.add(c);
+        const passed = callerArguments(sem, b);
+        for (const arg of passed) for (const c of modelRefOf(sem, arg, depth + 1).classes) ref.classes.add(c);
+        if (passed.length === 0) for (const c of unboundModelCandidates(sem, b)) ref.classes.add(c);
       }
       // A loop target over an ensemble stands for each of its members.
       const iterable = b.iterated ? (b.value ?? (b.unpack && b.unpack.index === 1 ? enumeratedIterable(sem, b.unpack.from) : null)) : null;
@@ -1821,14 +2108,24 @@ function countExpression(sem: Semantics, average: Average): string | null {
 
 /** True for names, attribute chains, numbers and constant subscripts (safe to repeat). */
 function isPure(expr: SyntaxNode): boolean {
-  const n = unwrapParens(expr);
-  if (n.type === 'identifier' || n.type === 'integer') return true;
-  if (n.type === 'attribute') return isPure(n.child('object')!);
-  if (n.type === 'subscript') {
-    const idx = n.childrenOf('subscript');
-    return isPure(n.child('value')!) && idx.length === 1 && (idx[0]!.type === 'string' || idx[0]!.type === 'integer');
+  // A loop down the chain rather than recursion: attribute and subscript chains can be thousands long.
+  for (let n = unwrapParens(expr); ; ) {
+    if (n.type === 'identifier' || n.type === 'integer') return true;
+    if (n.type === 'attribute') {
+      const object = n.child('object');
+      if (!object) return false;
+      n = unwrapParens(object);
+      continue;
+    }
+    if (n.type === 'subscript') {
+      const idx = n.childrenOf('subscript');
+      const value = n.child('value');
+      if (!value || idx.length !== 1 || (idx[0]!.type !== 'string' && idx[0]!.type !== 'integer')) return false;
+      n = unwrapParens(value);
+      continue;
+    }
+    return false;
   }
-  return false;
 }
 
 /** True when every name in an expression means the same thing at another place (same file, same bindings). */

@@ -582,12 +582,12 @@ export class ModeFlow {
     const left = clause.child('left');
     if (!left) return;
     const targets = new Set<string>();
-    const collect = (t: SyntaxNode) => {
-      const u = unwrapParens(t);
+    // An explicit stack: loop targets can nest deeply (`for ((((a,),),),) in …`).
+    for (const stack = [left]; stack.length > 0; ) {
+      const u = unwrapParens(stack.pop()!);
       if (u.type === 'identifier') targets.add(u.text);
-      else for (const c of u.namedChildren) collect(c);
-    };
-    collect(left);
+      else stack.push(...u.namedChildren);
+    }
     const body = loop.type === 'for_statement' ? loop.child('body') : loop.child('body');
     if (!body) return;
     const stack = [body];

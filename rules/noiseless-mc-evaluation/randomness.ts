@@ -248,7 +248,9 @@ export function bodyNodes(body: SyntaxNode): SyntaxNode[] {
  * +1 when a condition holds only while the module is training (`self.training`, `self.training and …`,
  * `self.training is True`), −1 for its negation, 0 when it cannot be told.
  */
-export function trainingPolarity(sem: Semantics, cond: SyntaxNode): number {
+export function trainingPolarity(sem: Semantics, cond: SyntaxNode, depth = 0): number {
+  // Bounded: `not not … self.training` thousands deep must not overflow the stack.
+  if (depth > 16) return 0;
   const n = unwrapParens(cond);
   if (n.type === 'attribute') {
     const object = n.child('object');
@@ -256,15 +258,15 @@ export function trainingPolarity(sem: Semantics, cond: SyntaxNode): number {
   }
   if (n.type === 'not_operator') {
     const arg = n.child('argument');
-    return arg ? -trainingPolarity(sem, arg) : 0;
+    return arg ? -trainingPolarity(sem, arg, depth + 1) : 0;
   }
   if (n.type === 'boolean_operator') {
     const op = n.child('operator')?.text;
     const left = n.child('left');
     const right = n.child('right');
     if (!left || !right) return 0;
-    const l = trainingPolarity(sem, left);
-    const r = trainingPolarity(sem, right);
+    const l = trainingPolarity(sem, left, depth + 1);
+    const r = trainingPolarity(sem, right, depth + 1);
     if (op === 'and' && (l === 1 || r === 1)) return 1;
     if (op === 'or' && (l === -1 || r === -1)) return -1;
     return 0;
@@ -273,7 +275,7 @@ export function trainingPolarity(sem: Semantics, cond: SyntaxNode): number {
     const parts = n.namedChildren;
     const ops = n.children.filter((c) => c.field === 'operators' || c.field === 'operator').map((c) => c.text);
     if (parts.length === 2 && ops.length === 1) {
-      const p = trainingPolarity(sem, parts[0]!);
+      const p = trainingPolarity(sem, parts[0]!, depth + 1);
       const v = sem.fold(parts[1]!);
       if (p !== 0 && typeof v === 'boolean' && (ops[0] === 'is' || ops[0] === '==')) return v ? p : -p;
     }

@@ -223,12 +223,12 @@ function resolveCount(sem: Semantics, flow: ModeFlow, repetition: Repetition): R
 /** True when a loop target is read anywhere in the loop (other than `_`-style names never read). */
 function targetUsed(sem: Semantics, left: SyntaxNode, loop: SyntaxNode): boolean {
   const names = new Set<SyntaxNode>();
-  const collect = (t: SyntaxNode) => {
-    const u = unwrapParens(t);
+  // An explicit stack: loop targets can nest deeply (`for ((((a,),),),) in …`).
+  for (const stack = [left]; stack.length > 0; ) {
+    const u = unwrapParens(stack.pop()!);
     if (u.type === 'identifier') names.add(u);
-    else for (const c of u.namedChildren) collect(c);
-  };
-  collect(left);
+    else stack.push(...u.namedChildren);
+  }
   for (const n of loop.type === 'for_statement' ? bodyNodes(loop.child('body')!) : bodyNodes(loop)) {
     if (n.type !== 'identifier' || names.has(n)) continue;
     if (sem.bindings(n).some((b) => names.has(b.node))) return true;

@@ -13,7 +13,9 @@ export type Op =
   | { kind: 'clamp'; max: number | null; maxNode: SyntaxNode | null; call: SyntaxNode }
   | { kind: 'sigmoid' }
   | { kind: 'tanh' }
-  | { kind: 'softplus' };
+  | { kind: 'softplus' }
+  /** The odds p/(1 − p + eps) of a rate p (α of Gaussian dropout from its drop rate); `node` is the quotient. */
+  | { kind: 'odds'; eps: number; node: SyntaxNode };
 
 /** A trainable tensor declaration. */
 export interface Trainable {
@@ -119,6 +121,11 @@ export function walk(sem: Semantics, start: SyntaxNode, outer: Op[], frame: Fram
           return visit(typeof lv === 'number' ? right : left, [{ kind: 'scale', c }, ...ops], fr, read, depth + 1);
         }
         if (op === '/' && typeof rv === 'number' && rv > 0) return visit(left, [{ kind: 'scale', c: 1 / rv }, ...ops], fr, read, depth + 1);
+        if (op === '/') {
+          // p / (1 - p): the odds of p, which maps [0, 1) onto [0, ∞) (α from a drop rate).
+          const eps = oddsDenominator(sem, left, right);
+          if (eps !== null) return visit(left, [{ kind: 'odds', eps, node }, ...ops], fr, read, depth + 1);
+        }
         if (op === '+' && (typeof lv === 'number' || typeof rv === 'number')) {
           const c = (typeof lv === 'number' ? lv : rv) as number;
           return visit(typeof lv === 'number' ? right : left, [{ kind: 'shift', c }, ...ops], fr, read, depth + 1);
@@ -186,6 +193,10 @@ export function walk(sem: Semantics, start: SyntaxNode, outer: Op[], frame: Fram
     if (callee.method && callee.receiver && !q && ['mul', 'multiply', 'div', 'divide', 'true_divide', 'add', 'sub', 'subtract'].includes(callee.method)) {
       const arg = sem.argument(node, 0, 'other');
       const c = arg ? sem.fold(arg) : null;
+      if (typeof c !== 'number' && arg && ['div', 'divide', 'true_divide'].includes(callee.method)) {
+        const eps = oddsDenominator(sem, callee.receiver, arg);
+        if (eps !== null) return step({ kind: 'odds', eps, node }, callee.receiver);
+      }
       if (typeof c !== 'number') return add({ node, trainable: null, ops, read: null, opaque: false });
       const m = callee.method;
       if (m === 'mul' || m === 'multiply') return c > 0 ? step({ kind: 'scale', c }, callee.receiver) : add({ node, trainable: null, ops, read: null, opaque: true });
@@ -275,6 +286,11 @@ interface InPlaceClamp {
   attribute: string | null;
   /** Strings a guarding condition looks for in a parameter's name (`'log_alpha' in name`). */
   nameTests: string[];
+  /**
+   * The classes whose instances the clamp applies to, when the code tells (`self.log_alpha` in a method,
+   * `m.log_alpha` under `isinstance(m, C)`, a typed receiver); null when it does not (then any class with the attribute).
+   */
+  classes: ClassInfo[] | null;
   max: number;
   maxNode: SyntaxNode;
   node: SyntaxNode;
@@ -320,7 +336,7 @@ function inPlaceClamps(sem: Semantics): InPlaceClamp[] {
       if (typeof max !== 'number') continue;
       let t = unwrapParens(target);
       if (t.type === 'attribute' && t.child('attribute')?.text === 'data' && t.child('object')) t = unwrapParens(t.child('object')!);
-      if (t.type === 'attribute') out.push({ attribute: t.child('attribute')?.text ?? null, nameTests: [], max, maxNode, node: n });
+      if (t.type === 'attribute') out.push({ attribute: t.child('attribute')?.text ?? null, nameTests: [], classes: receiverClasses(sem, t.child('object'), n), max, maxNode, node: n });
       else if (t.type === 'identifier') {
         const tests: string[] = [];
         for (let a: SyntaxNode | null = n.parent; a; a = a.parent) {
@@ -330,11 +346,47 @@ function inPlaceClamps(sem: Semantics): InPlaceClamp[] {
           if (!cond) continue;
           for (const x of [cond, ...descendantsList(cond)]) if (x.type === 'string_content') tests.push(x.text);
         }
-        if (tests.length > 0) out.push({ attribute: null, nameTests: tests, max, maxNode, node: n });
+        if (tests.length > 0) out.push({ attribute: null, nameTests: tests, classes: null, max, maxNode, node: n });
       }
     }
   }
   return out;
+}
+
+/**
+ * The classes an in-place clamp's receiver is an instance of: `self` in a method, a value of a known workspace class,
+ * or a name narrowed by an enclosing `if isinstance(name, C)` (or a tuple of classes). Null when unknown.
+ */
+function receiverClasses(sem: Semantics, receiver: SyntaxNode | null, at: SyntaxNode): ClassInfo[] | null {
+  if (!receiver) return null;
+  const r = unwrapParens(receiver);
+  if (r.type === 'identifier' && sem.isSelf(r)) {
+    const cls = sem.selfClass(r);
+    return cls ? [cls] : null;
+  }
+  const type = sem.typeOf(r);
+  if (type?.kind === 'instance') return [type.cls];
+  if (r.type !== 'identifier') return null;
+  for (let a: SyntaxNode | null = at.parent; a; a = a.parent) {
+    if (a.type === 'function_definition' || a.type === 'class_definition') break;
+    if (a.type !== 'if_statement' && a.type !== 'elif_clause') continue;
+    const condition = a.child('condition');
+    const call = condition ? unwrapParens(condition) : null;
+    if (call?.type !== 'call' || sem.callee(call).qualifiedName !== 'builtins.isinstance') continue;
+    const subject = sem.argument(call, 0);
+    const kinds = sem.argument(call, 1);
+    if (!subject || !kinds || unwrapParens(subject).text !== r.text) continue;
+    const k = unwrapParens(kinds);
+    const out: ClassInfo[] = [];
+    for (const e of k.type === 'tuple' ? k.namedChildren : [k]) {
+      const symbol = sem.symbol(e);
+      // A library class (or anything unresolved) in the test: the clamp may reach any class, say nothing narrower.
+      if (symbol?.kind !== 'class') return null;
+      out.push(symbol.cls);
+    }
+    return out.length ? out : null;
+  }
+  return null;
 }
 
 function descendantsList(root: SyntaxNode): SyntaxNode[] {
@@ -346,23 +398,35 @@ export function withInPlaceBound(sem: Semantics, leaf: Leaf): Leaf {
   const name = leaf.trainable?.attribute?.name ?? leaf.trainable?.name;
   if (!leaf.trainable || !name) return leaf;
   let best: InPlaceClamp | null = null;
+  const owner = leaf.trainable.attribute?.cls ?? null;
+  // A clamp on instances of known classes bounds only an attribute of those classes (or of their bases and subclasses).
+  const related = (classes: ClassInfo[] | null) => classes === null || owner === null || classes.some((c) => sem.ancestry(c).some((a) => sameClass(a, owner)) || sem.ancestry(owner).some((a) => sameClass(a, c)));
   for (const c of inPlaceClamps(sem)) {
-    const matches = c.attribute !== null ? c.attribute === name : c.nameTests.some((t) => t.length > 0 && name.includes(t));
+    const matches = (c.attribute !== null ? c.attribute === name : c.nameTests.some((t) => t.length > 0 && name.includes(t))) && related(c.classes);
     if (matches && (!best || c.max < best.max)) best = c;
   }
   if (!best) return leaf;
   return { ...leaf, ops: [{ kind: 'clamp', max: best.max, maxNode: best.maxNode, call: best.node }, ...leaf.ops] };
 }
 
+/**
+ * True when two class records describe the same class definition. A memoised record may come from an earlier analysis
+ * of its file (the workspace re-analyses files it evicted from its cache), so identity alone is not enough.
+ */
+function sameClass(a: ClassInfo, b: ClassInfo): boolean {
+  return a === b || (a.qualifiedName === b.qualifiedName && a.node.start === b.node.start && a.node.end === b.node.end);
+}
+
 /** The type of an expression, seeing through a helper's `self` bound to the caller's receiver. */
 function typeOfInFrame(sem: Semantics, expr: SyntaxNode, frame: Frame | null): ReturnType<Semantics['typeOf']> {
-  const n = unwrapParens(expr);
-  if (frame && n.type === 'identifier') {
+  // A bounded loop out through the caller frames, not recursion.
+  let n = unwrapParens(expr);
+  for (let fr = frame, steps = 0; fr && n.type === 'identifier' && steps < MAX_DEPTH; steps++) {
     const b = sem.bindings(n);
-    if (b.length === 1 && b[0]!.kind === 'param') {
-      const bound = frame.bindings.get(b[0]!.node);
-      if (bound) return typeOfInFrame(sem, bound.expr, bound.frame);
-    }
+    const bound = b.length === 1 && b[0]!.kind === 'param' ? fr.bindings.get(b[0]!.node) : undefined;
+    if (!bound) break;
+    n = unwrapParens(bound.expr);
+    fr = bound.frame;
   }
   return sem.typeOf(n);
 }
@@ -450,6 +514,9 @@ export function applyOp(op: Op, x: number): number {
       return Math.tanh(x);
     case 'softplus':
       return x > 30 ? x : Math.log1p(Math.exp(x));
+    case 'odds':
+      // Increasing on (−∞, 1 + eps), where the denominator reaches 0 and the odds grow without limit.
+      return x >= 1 + op.eps ? Number.POSITIVE_INFINITY : x / (1 - x + op.eps);
   }
 }
 
@@ -476,6 +543,8 @@ export function invertOp(op: Op, y: number): number {
       return Math.abs(y) >= 1 ? Number.NaN : Math.atanh(y);
     case 'softplus':
       return y <= 0 ? Number.NaN : y > 30 ? y : Math.log(Math.expm1(y));
+    case 'odds':
+      return y <= -1 ? Number.NaN : (y * (1 + op.eps)) / (1 + y);
   }
 }
 
@@ -510,7 +579,9 @@ export function initialAlpha(sem: Semantics, leaf: Leaf, quantity: Quantity): nu
 }
 
 /** The constant an initial value fills the tensor with (`torch.full(shape, c)`, `c * torch.ones(...)`, a number). */
-function constantFill(sem: Semantics, init: SyntaxNode): number | null {
+function constantFill(sem: Semantics, init: SyntaxNode, depth = 0): number | null {
+  // Bounded: chains of `* 2` or `.float()` thousands long must not overflow the stack.
+  if (depth > MAX_DEPTH) return null;
   const n = unwrapParens(init);
   const v = sem.fold(n);
   if (typeof v === 'number') return v;
@@ -529,7 +600,7 @@ function constantFill(sem: Semantics, init: SyntaxNode): number | null {
       const f = data ? sem.fold(data) : null;
       return typeof f === 'number' ? f : null;
     }
-    if (callee.method && callee.receiver && ['float', 'double', 'to', 'clone'].includes(callee.method)) return constantFill(sem, callee.receiver);
+    if (callee.method && callee.receiver && ['float', 'double', 'to', 'clone'].includes(callee.method)) return constantFill(sem, callee.receiver, depth + 1);
     if (callee.method === 'fill_' && callee.receiver) {
       const f = sem.argument(n, 0);
       const fv = f ? sem.fold(f) : null;
@@ -544,19 +615,63 @@ function constantFill(sem: Semantics, init: SyntaxNode): number | null {
     const lv = sem.fold(left);
     const rv = sem.fold(right);
     if (op === '*' && typeof lv === 'number') {
-      const inner = constantFill(sem, right);
+      const inner = constantFill(sem, right, depth + 1);
       return inner === null ? null : lv * inner;
     }
     if (op === '*' && typeof rv === 'number') {
-      const inner = constantFill(sem, left);
+      const inner = constantFill(sem, left, depth + 1);
       return inner === null ? null : rv * inner;
     }
     if ((op === '+' || op === '-') && typeof rv === 'number') {
-      const inner = constantFill(sem, left);
+      const inner = constantFill(sem, left, depth + 1);
       return inner === null ? null : op === '+' ? inner + rv : inner - rv;
     }
   }
   return null;
+}
+
+/**
+ * For a quotient `p / d`: when d is `a - p` with a ≥ 1, or `(a - p) + c` with c ≥ 0 (the same p, read the same way),
+ * the quotient is the odds p/(1 − p + eps); returns that eps, else null.
+ */
+function oddsDenominator(sem: Semantics, numerator: SyntaxNode, denominator: SyntaxNode): number | null {
+  let d = unwrapParens(denominator);
+  let extra = 0;
+  if (d.type === 'binary_operator' && d.child('operator')?.text === '+') {
+    const l = d.child('left');
+    const r = d.child('right');
+    const lv = l ? sem.fold(l) : null;
+    const rv = r ? sem.fold(r) : null;
+    if (typeof rv === 'number' && l) {
+      extra = rv;
+      d = unwrapParens(l);
+    } else if (typeof lv === 'number' && r) {
+      extra = lv;
+      d = unwrapParens(r);
+    } else return null;
+  }
+  if (d.type !== 'binary_operator' || d.child('operator')?.text !== '-') return null;
+  const a = sem.fold(d.child('left')!);
+  const subtracted = d.child('right');
+  if (typeof a !== 'number' || !subtracted || !sameOperand(sem, numerator, subtracted)) return null;
+  const eps = a - 1 + extra;
+  return eps >= 0 ? eps : null;
+}
+
+/** True when two expressions read the same value: the same text, with every name in them bound the same way. */
+function sameOperand(sem: Semantics, a: SyntaxNode, b: SyntaxNode): boolean {
+  const x = unwrapParens(a);
+  const y = unwrapParens(b);
+  if (x.text.replace(/\s+/g, '') !== y.text.replace(/\s+/g, '')) return false;
+  const names = (n: SyntaxNode) => [...descendants(n)].filter((c) => c.type === 'identifier' && !(c.parent?.type === 'attribute' && c.field === 'attribute'));
+  const xs = names(x);
+  const ys = names(y);
+  if (xs.length !== ys.length) return false;
+  return xs.every((n, i) => {
+    const bx = sem.bindings(n);
+    const by = sem.bindings(ys[i]!);
+    return bx.length === by.length && bx.every((bnd) => by.includes(bnd));
+  });
 }
 
 /** Iterative preorder walk of a subtree. */

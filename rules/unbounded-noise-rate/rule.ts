@@ -13,6 +13,13 @@ const LINEAR_MAPS = new Set(['torch.nn.functional.linear', 'torch.nn.functional.
 /** Kingma et al. (2015) and Molchanov et al. (2017) KL-approximation constants (SOURCES.md §3): they presuppose α is the noise variance. */
 const KL_CONSTANTS = [1.16145124, -1.50204118, 0.58629921, 0.63576, 1.8732, 1.48695];
 
+/**
+ * How far above 1 a bound on α may lie and still count as α ≤ 1: an epsilon added to the std of a clamped rate
+ * (`exp(½·min(log α, 0)) + 1e-8`) moves the bound by about 2·eps. At α = 1.001 the sign-flip probability Φ(−1/√α)
+ * differs from Φ(−1) by about 1.2e-4 (φ(1)·(1 − 1/√1.001), from the standard normal density), far below the figures' precision.
+ */
+const ALPHA_TOLERANCE = 1e-3;
+
 /** The rule: multiplicative Gaussian noise whose trainable variance nothing bounds at α ≤ 1, and α used as its std. */
 export const rule = defineRule({
   meta: {
@@ -48,7 +55,7 @@ export const rule = defineRule({
         reportConfusion(context, site, confusion, bound);
         return;
       }
-      if (trainable.length === 0 || bound === null || bound.alphaMax <= 1 + 1e-9) return;
+      if (trainable.length === 0 || bound === null || bound.alphaMax <= 1 + ALPHA_TOLERANCE) return;
       reported.add(site.rate);
       reportUnbounded(context, site, trainable[0]!, bound, trainable.length === leaves.length);
     }
@@ -150,13 +157,9 @@ function sumSites(sem: Semantics, sum: SyntaxNode): NoiseSite[] {
       out.push({ rate: product.others[0]!, quantity: 'std', outer: product.constant, signal: factor?.signal ?? null, noise: product.noise, rewrite: factor ? { node: factor.product, shape: 'product' } : null });
       continue;
     }
-    // θ + s·|θ|·ε: one factor of the std is the other summand (possibly through abs).
-    const expanded = expandFactors(sem, product.others);
-    const signalIndex = expanded.findIndex((f) => sameValue(stripAbs(sem, f), one));
-    if (signalIndex >= 0 && expanded.length === 2) {
-      const rate = expanded[1 - signalIndex]!;
-      out.push({ rate, quantity: 'std', outer: product.constant, signal: one, noise: product.noise, rewrite: { node: unwrapParens(other), shape: 'relative' } });
-    }
+    // θ + s·|θ|·ε: one factor of the std is the other summand (possibly through abs), or θ + √(α·θ²)·ε.
+    const relative = relativeStd(sem, product.others, product.constant, one);
+    if (relative) out.push({ ...relative, signal: one, noise: product.noise, rewrite: relative.quantity === 'std' ? { node: unwrapParens(other), shape: 'relative' } : null });
   }
   return out;
 }
@@ -182,9 +185,8 @@ function callSites(sem: Semantics, call: SyntaxNode): NoiseSite[] {
       return [{ rate: unwrapParens(scale), quantity: 'std', outer: [], signal: null, noise: call, rewrite: null }];
     }
     const factors = flattenProduct(sem, scale);
-    const expanded = expandFactors(sem, factors.others);
-    const signalIndex = expanded.findIndex((f) => sameValue(stripAbs(sem, f), loc));
-    if (signalIndex >= 0 && expanded.length === 2) return [{ rate: expanded[1 - signalIndex]!, quantity: 'std', outer: factors.constant, signal: loc, noise: call, rewrite: { node: unwrapParens(scale), shape: 'scale' } }];
+    const relative = relativeStd(sem, factors.others, factors.constant, loc);
+    if (relative) return [{ ...relative, signal: loc, noise: call, rewrite: relative.quantity === 'std' ? { node: unwrapParens(scale), shape: 'scale' } : null }];
   }
   return [];
 }
@@ -194,8 +196,9 @@ function linearVarianceSite(sem: Semantics, input: SyntaxNode | null, weight: Sy
   if (!input || !weight) return null;
   if (!squareBase(sem, resolveLocal(sem, input))) return null;
   let v = resolveLocal(sem, weight);
-  // `(α·w²).t()`, `.T`, `.transpose(...)` keep the product.
+  // `(α·w²).t()`, `.T`, `.transpose(...)` keep the product; an added epsilon (`α·w² + 1e-8`) does not bound it.
   for (let i = 0; i < 3; i++) {
+    v = stripAddedConstant(sem, v);
     if (v.type === 'call') {
       const c = sem.callee(v);
       if (c.receiver && (c.method === 't' || c.method === 'transpose' || c.method === 'permute')) {
@@ -260,21 +263,91 @@ function flattenProduct(sem: Semantics, expr: SyntaxNode): { noise: SyntaxNode |
   return { noise, constant: c === 1 ? [] : [{ kind: 'scale', c }], others };
 }
 
-/** Factors of a std expression, following local names bound once to a product (`sigma = s * theta.abs()`). */
-function expandFactors(sem: Semantics, factors: SyntaxNode[]): SyntaxNode[] {
+/**
+ * Factors of a std expression, following local names bound once to a product (`sigma = s * theta.abs()`) and
+ * looking through an added non-negative constant (`s * theta.abs() + 1e-8`: an epsilon keeps the std positive but
+ * bounds nothing). Constant factors found inside are multiplied into `scale`.
+ */
+function expandFactors(sem: Semantics, factors: SyntaxNode[]): { factors: SyntaxNode[]; scale: number } {
   const out: SyntaxNode[] = [];
+  let scale = 1;
   for (const f of factors) {
-    const resolved = resolveLocal(sem, f);
-    if (resolved !== f && resolved.type === 'binary_operator' && resolved.child('operator')?.text === '*') {
+    const resolved = stripAddedConstant(sem, resolveLocal(sem, f));
+    if (resolved.type === 'binary_operator' && resolved.child('operator')?.text === '*') {
       const inner = flattenProduct(sem, resolved);
-      if (!inner.noise && inner.constant.length === 0) {
+      if (!inner.noise) {
         out.push(...inner.others);
+        for (const op of inner.constant) if (op.kind === 'scale') scale *= op.c;
         continue;
       }
     }
     out.push(f);
   }
-  return out;
+  return { factors: out, scale };
+}
+
+/** `e + c` or `c + e` with a constant c ≥ 0 (an epsilon) → e; anything else unchanged (parentheses removed). */
+function stripAddedConstant(sem: Semantics, expr: SyntaxNode): SyntaxNode {
+  let n = unwrapParens(expr);
+  for (let i = 0; i < 4 && n.type === 'binary_operator' && n.child('operator')?.text === '+'; i++) {
+    const left = n.child('left');
+    const right = n.child('right');
+    if (!left || !right) break;
+    const lv = sem.fold(left);
+    const rv = sem.fold(right);
+    if (typeof rv === 'number' && rv >= 0) n = unwrapParens(left);
+    else if (typeof lv === 'number' && lv >= 0) n = unwrapParens(right);
+    else break;
+  }
+  return n;
+}
+
+/** `sqrt(v)`, `v.sqrt()`, `v ** 0.5`, `v.pow(0.5)`, `torch.pow(v, 0.5)` → v; otherwise null. */
+function sqrtOperand(sem: Semantics, expr: SyntaxNode): SyntaxNode | null {
+  const n = unwrapParens(expr);
+  if (n.type === 'binary_operator' && n.child('operator')?.text === '**') return sem.fold(n.child('right')!) === 0.5 ? n.child('left') : null;
+  if (n.type !== 'call') return null;
+  const callee = sem.callee(n);
+  if (callee.qualifiedName && SQRT.has(callee.qualifiedName)) return sem.argument(n, 0);
+  if (callee.method === 'sqrt' && callee.receiver && !callee.qualifiedName) return callee.receiver;
+  if (callee.method === 'pow' && callee.receiver && !callee.qualifiedName) {
+    const e = sem.argument(n, 0, 'exponent');
+    return e && sem.fold(e) === 0.5 ? callee.receiver : null;
+  }
+  if (callee.qualifiedName === 'torch.pow') {
+    const e = sem.argument(n, 1, 'exponent');
+    return e && sem.fold(e) === 0.5 ? sem.argument(n, 0, 'input') : null;
+  }
+  return null;
+}
+
+/**
+ * A std relative to the noisy value θ, from its factors: `s·|θ|` (the std s·|θ|, α = s²), possibly plus an epsilon,
+ * or `√(α·θ² + eps)` (the variance α·θ², α itself). Returns the rate expression, what it is, and the constant steps.
+ */
+function relativeStd(sem: Semantics, factors: SyntaxNode[], constant: Op[], signal: SyntaxNode): { rate: SyntaxNode; quantity: Quantity; outer: Op[] } | null {
+  const outerScale = constant.reduce((c, op) => (op.kind === 'scale' ? c * op.c : c), 1);
+  const expanded = expandFactors(sem, factors);
+  const isSignal = (f: SyntaxNode) => sameValue(stripAbs(sem, stripAddedConstant(sem, f)), signal);
+  const scaleOps = (c: number): Op[] => (c === 1 ? [] : [{ kind: 'scale', c }]);
+  if (expanded.factors.length === 2) {
+    const signalIndex = expanded.factors.findIndex(isSignal);
+    if (signalIndex >= 0) return { rate: expanded.factors[1 - signalIndex]!, quantity: 'std', outer: scaleOps(outerScale * expanded.scale) };
+    return null;
+  }
+  if (expanded.factors.length !== 1) return null;
+  const variance = sqrtOperand(sem, stripAddedConstant(sem, resolveLocal(sem, expanded.factors[0]!)));
+  if (!variance) return null;
+  const inner = expandFactors(sem, [variance]);
+  if (inner.factors.length !== 2) return null;
+  const squareIndex = inner.factors.findIndex((f) => {
+    const base = squareBase(sem, resolveLocal(sem, f));
+    return base !== null && sameValue(stripAbs(sem, base), signal);
+  });
+  if (squareIndex < 0) return null;
+  // A constant c outside the square root scales the variance by c².
+  const c = outerScale * expanded.scale;
+  return { rate: inner.factors[1 - squareIndex]!, quantity: 'variance', outer: scaleOps(c * c * inner.scale) };
 }
 
 /** Follows a local name bound once (in the same function) to its value expression. */
@@ -458,6 +531,14 @@ interface Confusion {
  */
 function varianceAsStd(sem: Semantics, leaves: Leaf[]): Confusion | null {
   for (const leaf of leaves) {
+    // α computed as the odds p/(1 − p) of a drop rate is the Gaussian-dropout variance by construction.
+    const oddsAt = leaf.ops.map((op) => op.kind).lastIndexOf('odds');
+    if (oddsAt >= 0) {
+      const odds = leaf.ops[oddsAt]!;
+      const after = leaf.ops.slice(oddsAt + 1).filter((op) => op.kind !== 'clamp');
+      if (after.length === 0 && odds.kind === 'odds') return { leaf, evidence: ODDS_EVIDENCE, name: leafName(odds.node) };
+      continue;
+    }
     const shape = leaf.ops.filter((op) => op.kind !== 'clamp').map((op) => op.kind);
     const raw = shape.length === 0;
     const viaExp = shape.length === 1 && shape[0] === 'exp';
@@ -468,6 +549,8 @@ function varianceAsStd(sem: Semantics, leaves: Leaf[]): Confusion | null {
   }
   return null;
 }
+
+const ODDS_EVIDENCE = 'it is computed as p/(1 − p), the variance of Gaussian dropout with drop rate p';
 
 function leafName(node: SyntaxNode): string {
   const parent = node.parent;
@@ -491,7 +574,7 @@ function varianceEvidence(sem: Semantics, leaf: Leaf, viaExp: boolean): string |
 
 function findVarianceEvidence(sem: Semantics, leaf: Leaf, key: SyntaxNode, viaExp: boolean): string | null {
   const init = leaf.trainable ? leaf.trainable.init : leaf.node;
-  if (init && isOddsForm(sem, init, viaExp)) return viaExp ? 'it is initialised as log(p/(1 − p)), the log-variance of Gaussian dropout with drop rate p' : 'it is computed as p/(1 − p), the variance of Gaussian dropout with drop rate p';
+  if (init && isOddsForm(sem, init, viaExp)) return viaExp ? 'it is initialised as log(p/(1 − p)), the log-variance of Gaussian dropout with drop rate p' : ODDS_EVIDENCE;
   const cls = leaf.trainable?.attribute?.cls ?? classOfNode(sem, leaf.node);
   if (!cls) return null;
   const attrName = leaf.trainable?.attribute?.name ?? attributeAssignedFrom(leaf.node);
@@ -648,7 +731,7 @@ function reportConfusion(context: RuleContext, site: NoiseSite, confusion: Confu
   });
 }
 
-/** α of a non-trainable leaf when it folds (a constant Gaussian-dropout rate). */
+/** α of a non-trainable leaf when it folds (a constant Gaussian-dropout rate): the leaf's value through its steps. */
 function fixedAlpha(sem: Semantics, leaf: Leaf): number | null {
   let v = sem.fold(leaf.node);
   if (typeof v !== 'number') {
@@ -661,6 +744,6 @@ function fixedAlpha(sem: Semantics, leaf: Leaf): number | null {
   }
   if (typeof v !== 'number') return null;
   let out = v;
-  for (const op of leaf.ops.filter((o) => o.kind === 'exp')) out = applyOp(op, out);
-  return out;
+  for (const op of leaf.ops) out = applyOp(op, out);
+  return Number.isFinite(out) ? out : null;
 }

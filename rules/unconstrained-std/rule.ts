@@ -454,13 +454,15 @@ function squareArgument(sem: Semantics, node: SyntaxNode): SyntaxNode | null {
 }
 
 /** Keys identifying which trainable tensor an expression inside a KL formula is (to pair log σ with σ²). */
-function candidateKeys(sem: Semantics, expr: SyntaxNode): { key: string; node: SyntaxNode }[] {
+function candidateKeys(sem: Semantics, expr: SyntaxNode, depth = 0): { key: string; node: SyntaxNode }[] {
+  // Bounded: a quotient of thousands of factors must not overflow the stack.
+  if (depth > MAX_VISIT) return [];
   // log σ² is log of a square: look through the square to σ.
   const inner = squareArgument(sem, unwrapParens(expr)) ?? expr;
   const target = unwrapParens(inner);
   if (target.type === 'binary_operator' && ['/', '*'].includes(target.child('operator')?.text ?? '')) {
     // log(a / b) = log a − log b: both sides are logged.
-    return [target.child('left'), target.child('right')].flatMap((side) => (side ? candidateKeys(sem, side) : []));
+    return [target.child('left'), target.child('right')].flatMap((side) => (side ? candidateKeys(sem, side, depth + 1) : []));
   }
   if (target.type !== 'identifier' && target.type !== 'attribute') return [];
   return trainableSources(sem, target).map((s) => ({ key: `${s.declaration.file.text.length}:${s.declaration.start}`, node: target }));
@@ -490,7 +492,9 @@ function initialConstant(sem: Semantics, init: SyntaxNode): number | null {
 }
 
 /** Recognises constant fills: `torch.full(shape, c)`, `torch.ones(...) * c`, `c * torch.ones(...)`, `torch.tensor(c)`, a number. */
-function constantFill(sem: Semantics, init: SyntaxNode): { value: number; node: SyntaxNode; kind: 'number' | 'full' | 'ones' | 'scaled-ones' | 'tensor' } | null {
+function constantFill(sem: Semantics, init: SyntaxNode, depth = 0): { value: number; node: SyntaxNode; kind: 'number' | 'full' | 'ones' | 'scaled-ones' | 'tensor' } | null {
+  // Bounded: chains of `* 2` or `.float()` thousands long must not overflow the stack.
+  if (depth > MAX_VISIT) return null;
   const n = unwrapParens(init);
   const folded = sem.fold(n);
   if (typeof folded === 'number') return { value: folded, node: n, kind: 'number' };
@@ -507,7 +511,7 @@ function constantFill(sem: Semantics, init: SyntaxNode): { value: number; node: 
       const v = data ? sem.fold(data) : null;
       if (typeof v === 'number' && data) return { value: v, node: data, kind: 'tensor' };
     }
-    if (callee.method && PASS_THROUGH_METHODS.has(callee.method) && callee.method !== 'pow' && callee.method !== 'square' && callee.receiver) return constantFill(sem, callee.receiver);
+    if (callee.method && PASS_THROUGH_METHODS.has(callee.method) && callee.method !== 'pow' && callee.method !== 'square' && callee.receiver) return constantFill(sem, callee.receiver, depth + 1);
   }
   if (n.type === 'binary_operator' && n.child('operator')?.text === '*') {
     const left = n.child('left')!;
@@ -517,7 +521,7 @@ function constantFill(sem: Semantics, init: SyntaxNode): { value: number; node: 
     const other = typeof lv === 'number' ? right : typeof rv === 'number' ? left : null;
     const k = typeof lv === 'number' ? lv : typeof rv === 'number' ? rv : null;
     if (other && k !== null) {
-      const inner = constantFill(sem, other);
+      const inner = constantFill(sem, other, depth + 1);
       if (inner && (inner.kind === 'ones' || inner.kind === 'full')) return { value: inner.value * k, node: n, kind: 'scaled-ones' };
     }
   }

@@ -208,6 +208,11 @@ def reference_probs(model, x, T, pattern):
             probs.append(F.softmax(model(x), dim=-1))
     elif pattern == "expand":
         return F.softmax(model(x.unsqueeze(0).expand(T, -1, -1)), dim=-1).mean(0)
+    elif pattern == "interleave":
+        # One call on every example repeated T times in a row, the copies unfolded onto axis 1.
+        return F.softmax(model(x.repeat_interleave(T, dim=0)).view(x.shape[0], T, -1), dim=-1).mean(1)
+    elif pattern == "second-axis":
+        return F.softmax(model(x.unsqueeze(1).expand(-1, T, -1)), dim=-1).mean(1)
     elif pattern == "binary-loop":
         return torch.stack([torch.sigmoid(model(x)) for _ in range(T)]).mean(0)
     elif pattern == "logprob-loop":

@@ -593,6 +593,53 @@ const CASES: OracleCase[] = [
   },
   {
     rule: 'logit-space-average',
+    fixture: 'flagged-helpers',
+    entry: 'evaluate.py',
+    scenario: 'mc-functions',
+    params: {
+      model: 'm.BearingFaultNet()',
+      input: [512, 16],
+      T: 10,
+      functions: [
+        { name: 'mc_probabilities', kind: 'probs' },
+        { name: 'mc_nll', kind: 'nll', call: 'f(model, x, y, T)' },
+        { name: 'mc_vote', kind: 'argmax' },
+        { name: 'nested_probabilities', kind: 'probs' },
+        // T members that are the same MC-dropout net: each member call is one pass, in the reference's order.
+        { name: 'members_probabilities', kind: 'probs', call: 'f([model] * T, x)' },
+      ],
+    },
+    // Gal & Ghahramani (2016), SOURCES.md §4: the samples come from helpers in another module; the predictive is still the probability average.
+    check: (result) => checkPredictiveFunctions(result),
+  },
+  {
+    rule: 'logit-space-average',
+    fixture: 'flagged-vectorised.py',
+    entry: 'flagged-vectorised.py',
+    scenario: 'mc-functions',
+    params: {
+      model: 'm.BearingMLP()',
+      input: [512, 16],
+      T: 10,
+      functions: [
+        { name: 'expand_splat_vote', kind: 'argmax', pattern: 'expand' },
+        { name: 'none_index_probabilities', kind: 'probs', pattern: 'expand' },
+        { name: 'implicit_axis_probabilities', kind: 'probs', pattern: 'expand' },
+        { name: 'stacked_copies_probabilities', kind: 'probs', pattern: 'expand' },
+        { name: 'comprehension_copies_probabilities', kind: 'probs', pattern: 'expand' },
+        { name: 'tiled_probabilities', kind: 'probs', pattern: 'expand' },
+        { name: 'expand_as_probabilities', kind: 'probs', pattern: 'expand' },
+        { name: 'folded_expand_probabilities', kind: 'probs', pattern: 'repeat' },
+        { name: 'unflatten_probabilities', kind: 'probs', pattern: 'repeat' },
+        { name: 'interleaved_vote', kind: 'argmax', pattern: 'interleave' },
+        { name: 'second_axis_probabilities', kind: 'probs', pattern: 'second-axis' },
+      ],
+    },
+    // The rule offers no fix when the samples sit on axis 1 and softmax's class dim is negative (doc.md, "Fix").
+    check: (result) => checkPredictiveFunctions(result, ['second_axis_probabilities']),
+  },
+  {
+    rule: 'logit-space-average',
     fixture: 'fix-log-probs.py',
     entry: 'fix-log-probs.py',
     scenario: 'worked-example',
@@ -623,6 +670,33 @@ const CASES: OracleCase[] = [
   ]),
   elboCase('flagged-notebook.ipynb', 'flagged-notebook.ipynb', [{ function: null, model_class: 'StageLayer', kl_class: 'StageLayer', kl_method: 'kl', data: 'mse' }]),
   elboCase('flagged-project', 'train.py', [{ function: 'main', model_class: 'BearingClassifier', kl_class: 'BearingClassifier', kl_method: 'kl', data: 'ce', finding: { path: 'losses.py', function: 'elbo_loss' } }]),
+  elboCase('flagged-kl-methods.py', 'flagged-kl-methods.py', [
+    { function: 'sum_of_submodule_kls', model_class: 'GaugeForecaster', kl_class: 'GaugeForecaster', kl_method: 'kl', data: 'mse' },
+    { function: 'layer_kl_called_directly', model_class: 'StageHead', kl_class: 'StageHead', kl_method: 'kl_divergence', data: 'mse' },
+    { function: 'looped_closed_form_over_batch_size', model_class: 'RainfallBayesLinear', kl_class: 'RainfallBayesLinear', kl_method: 'kl', data: 'mse' },
+    { function: 'sampled_kl_method', model_class: 'SampledKlLayer', kl_class: 'SampledKlLayer', kl_method: 'kl', data: 'mse' },
+    // The layers' KL methods are called once each per step, so their values add up to the network's KL.
+    { function: 'kl_helper_over_layer_tuple', model_class: 'TwoStageNet', kl_class: 'RainfallBayesLinear', kl_method: 'kl', data: 'mse' },
+    { function: 'stacked_layer_kls', model_class: 'TwoStageNet', kl_class: 'RainfallBayesLinear', kl_method: 'kl', data: 'mse' },
+    { function: 'accumulated_block_kls', model_class: 'StackedGauge', kl_class: 'StackedGauge', kl_method: 'kl', data: 'mse' },
+  ]),
+  elboCase('flagged-branches.py', 'flagged-branches.py', [
+    // Each run takes the default branch, which is the wrong one; the correct sibling branches are not executed.
+    { function: 'scaled_or_full', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', data: 'ce' },
+    { function: 'per_example_or_per_dataset', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', data: 'ce' },
+    // The KL method runs twice per step here (the first loss is overwritten), so the total KL is measured once.
+    { function: 'mean_branches', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', kl_total: 'head.kl()', data: 'ce' },
+    { function: 'helper_with_two_returns', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', data: 'ce', finding: { path: 'flagged-branches.py', function: 'objective' } },
+    { function: 'conditional_expression', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', data: 'ce' },
+    { function: 'match_on_reduction', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', data: 'ce' },
+    { function: 'fallback_without_dataset_size', model_class: 'BearingBayesHead', kl_class: 'BearingBayesHead', kl_method: 'kl', data: 'ce', finding: { path: 'flagged-branches.py', function: 'per_datum_elbo' } },
+  ]),
+  // N = 2,000 is the first part of random_split(2,352 examples, [0.85, 0.15]) (1,999 plus the one left over): PyTorch sizes the parts at run time.
+  elboCase('flagged-training-step.py', 'flagged-training-step.py', [
+    { function: 'trainer_class', model_class: 'BearingMFVI', kl_class: 'BearingMFVI', kl_method: 'kl', data: 'ce', finding: { path: 'flagged-training-step.py', function: 'elbo_loss' } },
+    { function: 'summing_trainer', model_class: 'BearingMFVI', kl_class: 'BearingMFVI', kl_method: 'kl', data: 'ce', finding: { path: 'flagged-training-step.py', function: 'train_step' } },
+    { function: 'step_function', model_class: 'BearingMFVI', kl_class: 'BearingMFVI', kl_method: 'kl', data: 'ce', finding: { path: 'flagged-training-step.py', function: 'batch_loss' } },
+  ]),
   // unbounded-noise-rate: the θ-gradient (or activation gradient) through the fixture's own noise, at a reachable rate.
   noiseRateCase('flagged-spellings.py', 'flagged-spellings.py', [
     { name: 'BandGaussianDropout', build: 'm.BandGaussianDropout(2000)', input: [10, 2000], target: 'input', noisy: { alpha: Math.exp(LOG_ALPHA_PRUNE) }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'return x * (1 + torch.sqrt(self.alpha) * eps)', kind: 'unbounded' },
@@ -669,6 +743,33 @@ const CASES: OracleCase[] = [
   noiseRateCase('fix-lrt.py', 'fix-lrt.py', [
     { name: 'GaugeVDLinear (additive)', build: 'm.GaugeVDLinear(1, 20000)', input: [1, 1], target: 'theta', repeats: 4, noisy: { log_alpha: LOG_ALPHA_PRUNE }, fixed_noisy: { log_sigma2: `${LOG_ALPHA_PRUNE} + torch.log(module.theta.detach() ** 2 + 1e-8)` }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: Math.exp(LOG_ALPHA_PRUNE) }, at: 'var = F.linear(x ** 2,', kind: 'unbounded' },
   ], { fix: 1 }),
+  // An epsilon added to the std bounds nothing: measured at log α = 3 like the unbounded layers above.
+  noiseRateCase('flagged-epsilon.py', 'flagged-epsilon.py', [
+    { name: 'LeafVDLinear.forward', build: 'm.LeafVDLinear(100, 200)', input: [8, 100], target: 'theta', noisy: { log_alpha: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'w = Normal(self.theta, torch.exp(0.5 * self.log_alpha) * self.theta.abs() + 1e-8)', kind: 'unbounded' },
+    { name: 'LeafVDLinear.forward_abs_epsilon', build: 'm.LeafVDLinear(100, 200)', method: 'forward_abs_epsilon', input: [8, 100], target: 'theta', noisy: { log_alpha: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: '(self.theta.abs() + 1e-8) * self.log_alpha', kind: 'unbounded' },
+    { name: 'LeafVDLinear.forward_named_std', build: 'm.LeafVDLinear(100, 200)', method: 'forward_named_std', input: [8, 100], target: 'theta', noisy: { log_alpha: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'std = torch.exp(0.5 * self.log_alpha) * self.theta.abs() + 1e-6', kind: 'unbounded' },
+    { name: 'LeafVDLinear.forward_sqrt_variance', build: 'm.LeafVDLinear(100, 200)', method: 'forward_sqrt_variance', input: [8, 100], target: 'theta', noisy: { log_alpha: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'torch.sqrt(self.log_alpha.exp() * self.theta ** 2', kind: 'unbounded' },
+    { name: 'LeafVDLinear.forward_relative_sum', build: 'm.LeafVDLinear(100, 200)', method: 'forward_relative_sum', input: [8, 100], target: 'theta', noisy: { log_alpha: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'w = self.theta + (torch.exp', kind: 'unbounded' },
+    // Local reparameterisation: with one input and one example the pre-activation noise is exactly the weight noise.
+    { name: 'LeafVDLinear.forward_lrt', build: 'm.LeafVDLinear(1, 20000)', method: 'forward_lrt', input: [1, 1], target: 'theta', noisy: { log_alpha: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'var = F.linear(x ** 2, self.log_alpha', kind: 'unbounded' },
+    { name: 'BandGaussianDropout (sqrt(α + eps))', build: 'm.BandGaussianDropout(2000)', input: [10, 2000], target: 'input', noisy: { alpha: Math.exp(LOG_ALPHA_PRUNE) }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'torch.sqrt(self.alpha + 1e-8)', kind: 'unbounded' },
+  ]),
+  // A learned drop rate p = sigmoid(z) with α = p/(1 − p) = e^z (Kingma et al. 2015, Sec. 3): z = 3 gives α = e³ as above.
+  noiseRateCase('flagged-drop-rate.py', 'flagged-drop-rate.py', [
+    { name: 'LearnedRateDropout.forward', build: 'm.LearnedRateDropout(2000)', input: [10, 2000], target: 'input', noisy: { p_logit: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'return x * (1 + alpha.sqrt() * torch.randn_like(x))', kind: 'unbounded' },
+    { name: 'LearnedRateDropout.forward_inline', build: 'm.LearnedRateDropout(2000)', method: 'forward_inline', input: [10, 2000], target: 'input', noisy: { p_logit: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'torch.sqrt(p / (1.0 - p))', kind: 'unbounded' },
+    { name: 'LearnedRateDropout.forward_div', build: 'm.LearnedRateDropout(2000)', method: 'forward_div', input: [10, 2000], target: 'input', noisy: { p_logit: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'p.div(1 - p).sqrt()', kind: 'unbounded' },
+    { name: 'RatePropertyDropout', build: 'm.RatePropertyDropout(2000)', input: [10, 2000], target: 'input', noisy: { p_logit: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'x * (1 + torch.sqrt(alpha) * torch.randn_like(x))', kind: 'unbounded' },
+    { name: 'DriftWeightNoise', build: 'm.DriftWeightNoise(100, 200)', input: [8, 100], target: 'theta', noisy: { p_logit: LOG_ALPHA_PRUNE }, alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'torch.sqrt(p / (1 - p)) * torch.randn_like(self.theta)', kind: 'unbounded' },
+    // p capped at 0.9: α = 0.9/0.1 = 9 at the cap; set beyond it so the noise runs at the cap itself.
+    { name: 'CappedAboveHalfDropout (p ≤ 0.9)', build: 'm.CappedAboveHalfDropout(2000)', input: [10, 2000], target: 'input', noisy: { p_logit: 10 }, alphas: { original: 9, fixed: 1 }, at: 'x * (1 + alpha ** 0.5 * torch.randn_like(x))', kind: 'loose-bound' },
+    // p/(1 − p + 1e-6) reaches 1/1e-6 = 10⁶ where the float32 sigmoid rounds to 1 (z = 30).
+    { name: 'EpsilonOddsDropout (α ≤ 1/eps)', build: 'm.EpsilonOddsDropout(2000)', input: [10, 2000], target: 'input', noisy: { p_logit: 30 }, alphas: { original: 1e6, fixed: 1 }, at: 'torch.sqrt(p / (1 - p + 1e-6))', kind: 'loose-bound' },
+  ]),
+  // The fixture's own in-place bound runs first: it clamps only ProbeDropout, so DriftDropout still runs at log α = 3.
+  noiseRateCase('flagged-in-place-scope.py', 'flagged-in-place-scope.py', [
+    { name: 'DriftDropout (in-place bound on another class)', build: 'm.DriftDropout(2000)', input: [10, 2000], target: 'input', noisy: { log_alpha: LOG_ALPHA_PRUNE }, prepare: 'm.after_step(module)', alphas: { original: Math.exp(LOG_ALPHA_PRUNE), fixed: 1 }, at: 'return x * (1 + self.log_alpha.mul(0.5).exp()', kind: 'unbounded' },
+  ]),
   // unbounded-noise-rate, second message: α used as the noise std. α = p/(1 − p) = 0.25 at p = 0.2 (SOURCES.md §9);
   // the other α are the fixtures' own initial values (log α = −2, α = 0.5).
   varianceCase('flagged-variance-as-std.py', 'flagged-variance-as-std.py', [
@@ -678,6 +779,10 @@ const CASES: OracleCase[] = [
   ]),
   varianceCase('fix-variance-as-std.py', 'fix-variance-as-std.py', [
     { name: 'BandGaussianDropout (p = 0.2)', build: 'm.BandGaussianDropout()', input: [40000], alpha: 0.25, at: 'return x * (torch.randn_like(x) * self.alpha + 1)' },
+  ]),
+  // A learned rate initialised at p = sigmoid(−1.3862944) = 0.2: α = p/(1 − p) = 0.25 (SOURCES.md §9), used as the std.
+  varianceCase('flagged-drop-rate.py', 'flagged-drop-rate.py', [
+    { name: 'OddsAsStdDropout (p = 0.2)', build: 'm.OddsAsStdDropout(40000)', input: [40000], alpha: 0.25, at: 'x * (1 + alpha * torch.randn_like(x))' },
   ]),
   // noiseless-mc-evaluation: every pass of the fixture's MC loop, against one deterministic pass, before and after the fix.
   mcCase('flagged-basic.py', 'flagged-basic.py', { input: [64, 32] }, [
@@ -730,6 +835,7 @@ const CASES: OracleCase[] = [
  * Keep this list short: a fixture belongs here only when its mistake cannot be isolated at run time.
  */
 const STATIC_ONLY: Record<string, string> = {
+  'logit-space-average/flagged-einops.py': 'einops is not installed with Debian\'s python3-torch (the oracle installs only python3-torch and python3-scipy)',
   'elbo-scale-mismatch/flagged-data-terms.py': 'its four data terms share one backward pass, so their weights cannot be separated at run time',
 };
 

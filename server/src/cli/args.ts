@@ -23,6 +23,8 @@ export interface CheckOptions {
   skip: string[];
   exitZero: boolean;
   color: boolean;
+  /** Worker threads for the check: null = as many as the machine has cores (capped), 1 = in this thread. */
+  jobs: number | null;
 }
 
 /** A parsed command line. */
@@ -101,6 +103,7 @@ function parseCheck(argv: string[]): ParsedCommand {
     skip: [],
     exitZero: false,
     color: true,
+    jobs: null,
   };
   let onlyPaths = false;
   for (let i = 0; i < argv.length; i++) {
@@ -130,6 +133,11 @@ function parseCheck(argv: string[]): ParsedCommand {
       case '--output':
         [value, i] = takeValue(argv, i, name, inline, 'check');
         options.output = value;
+        break;
+      case '--jobs':
+        [value, i] = takeValue(argv, i, name, inline, 'check');
+        if (!/^[1-9]\d{0,2}$/.test(value)) throw new UsageError(`--jobs must be a whole number from 1 to 999 (got "${value}")`, 'check');
+        options.jobs = Number(value);
         break;
       case '--fail-on':
         [value, i] = takeValue(argv, i, name, inline, 'check');
@@ -214,6 +222,7 @@ export function helpText(topic: string | null): string {
         '  --rule ID          run only this rule (repeatable, or comma-separated)',
         '  --skip ID          do not run this rule (repeatable, or comma-separated)',
         '  --exit-zero        exit with 0 even when there are findings (2 still means an error)',
+        '  --jobs N           check with N worker threads (default: one per core, up to 8; 1 = no workers)',
         '  --no-color         plain text output (also when NO_COLOR is set or the output is not a terminal)',
         '  -h, --help         show this help',
         '',

@@ -3,6 +3,7 @@
 import * as fs from 'node:fs';
 import * as path from 'node:path';
 import { createTwoFilesPatch } from 'diff';
+import { budgetFromEnv, DEFAULT_FILE_BUDGET_MS } from '../engine/budget';
 import { loadConfigFor, toEngineSettings } from '../engine/config';
 import { SEVERITY_RANK } from '../engine/finding';
 import type { CheckInput, EngineSettings, FileReport, RuleSelection } from '../engine/types';
@@ -20,7 +21,7 @@ import { VERSION } from './product';
 /** The engine entry point, as the CLI calls it. */
 export type CheckSources = (
   inputs: CheckInput[],
-  options: { workspaceRoot: string; settingsFor(absPath: string): EngineSettings; rules?: RuleSelection },
+  options: { workspaceRoot: string; settingsFor(absPath: string): EngineSettings; rules?: RuleSelection; jobs?: number | null; budgetMs?: number },
 ) => Promise<FileReport[]>;
 
 /** What `noisewise check` needs besides its options: the rule registry and the engine. */
@@ -96,7 +97,9 @@ export async function runCheck(options: CheckOptions, io: CliIo, deps: CheckDeps
   if (options.rules.length > 0) selection.only = [...new Set(options.rules)];
   if (options.skip.length > 0) selection.skip = [...new Set(options.skip)];
   const large = collected.files.length >= 200;
-  const check = (inputs: CheckInput[]): Promise<FileReport[]> => deps.checkSources(inputs, { workspaceRoot: cwd, settingsFor, rules: selection });
+  // The per-file analysis budget (NOISEWISE_FILE_BUDGET_MS overrides the engine's default, e.g. for tests).
+  const budgetMs = budgetFromEnv(io.env, DEFAULT_FILE_BUDGET_MS);
+  const check = (inputs: CheckInput[]): Promise<FileReport[]> => deps.checkSources(inputs, { workspaceRoot: cwd, settingsFor, rules: selection, jobs: options.jobs, budgetMs });
 
   const files = new Map(collected.files.map((f) => [f.path, f]));
   const inputs: CheckInput[] = collected.files.map((f) => ({ path: f.path, absPath: f.absPath, text: f.text }));
@@ -217,6 +220,12 @@ function writeFixedFiles(changed: readonly string[], files: ReadonlyMap<string, 
     const bytes = encodeSource(file, texts.get(filePath)!);
     if (bytes === null) {
       notes.push({ path: filePath, level: 'warning', kind: 'fix', message: `not written: the fixed text cannot be encoded as ${file.encoding}` });
+      unwritten.push(filePath);
+      continue;
+    }
+    if ((file.mode & 0o222) === 0) {
+      // Nobody may write it: a read-only file is the user's decision, even for a process that could override it.
+      notes.push({ path: filePath, level: 'warning', kind: 'fix', message: 'not written: the file is read-only' });
       unwritten.push(filePath);
       continue;
     }

@@ -131,9 +131,15 @@ interface IgnoreLayer {
   rules: Ignore;
 }
 
-/** Walks folders, remembering the real paths of folders already searched so that symbolic-link loops end. */
+/**
+ * Walks folders, remembering the real paths of folders already searched so that symbolic-link loops end. Symbolic
+ * links are followed only while they stay inside the folders named to it: a checked project cannot make the walk
+ * (and so `--fix`) reach files elsewhere on the machine.
+ */
 class Walker {
   private readonly searched = new Set<string>();
+  /** Real paths of the folders named on the command line (the walk stays inside them). */
+  private readonly roots: string[] = [];
 
   constructor(
     private readonly options: CollectOptions,
@@ -154,7 +160,20 @@ class Walker {
 
   /** Walks a folder named on the command line, with the .gitignore files of its repository above it. */
   walkRoot(abs: string): void {
+    try {
+      this.roots.push(fs.realpathSync(abs));
+    } catch {
+      this.roots.push(abs);
+    }
     this.walk(abs, ancestorIgnoreLayers(abs, path.resolve(this.options.cwd)), false);
+  }
+
+  /** Whether a real path lies inside one of the named folders. */
+  private insideRoots(real: string): boolean {
+    return this.roots.some((root) => {
+      const rel = path.relative(root, real);
+      return rel === '' || (!rel.startsWith(`..${path.sep}`) && rel !== '..' && !path.isAbsolute(rel));
+    });
   }
 
   private note(abs: string, level: CliNote['level'], message: string): void {
@@ -192,14 +211,20 @@ class Walker {
       let isFile = entry.isFile();
       const isLink = entry.isSymbolicLink();
       if (isLink) {
+        let real: string;
         try {
           const target = fs.statSync(abs);
           isDir = target.isDirectory();
           isFile = target.isFile();
+          real = fs.realpathSync(abs);
         } catch (error) {
           const code = (error as NodeJS.ErrnoException).code;
           if (code === 'ELOOP') this.note(abs, 'warning', 'symbolic link loop');
           else if (sourceKind(abs) !== null) this.note(abs, 'warning', 'broken symbolic link');
+          continue;
+        }
+        if ((isDir || (isFile && sourceKind(abs) !== null)) && !this.insideRoots(real)) {
+          this.note(abs, 'info', `symbolic link to ${real}, outside the checked folders; not followed`);
           continue;
         }
       }
@@ -208,7 +233,10 @@ class Walker {
         if (isIgnored(active, abs, true)) continue;
         if (isExcluded(loadConfigForDir(dir, this.options.knownRuleIds), abs)) continue;
         this.walk(abs, active, isLink);
-      } else if (isFile) {
+      } else if (!isFile) {
+        // A FIFO, socket or device with a Python name: never opened (reading a FIFO would block), but explained.
+        if (sourceKind(abs) !== null && !isIgnored(active, abs, false)) this.note(abs, 'warning', 'not a regular file');
+      } else {
         if (sourceKind(abs) === null) continue;
         if (isIgnored(active, abs, false)) continue;
         if (isExcluded(loadConfigForDir(dir, this.options.knownRuleIds), abs)) continue;
@@ -452,21 +480,42 @@ export function encodeSource(file: Pick<SourceFile, 'bom' | 'encoding' | 'writab
 
 /**
  * Writes a file atomically: a temporary file in the same folder is written, flushed to disk and renamed over the
- * target, keeping the permission bits.
+ * target, keeping the permission bits and (where the process may) the owner. A symbolic link is followed: the file
+ * it points to is replaced and the link stays a link.
  */
 export function writeFileAtomic(abs: string, options: { bytes: Uint8Array; mode: number }): void {
   const { bytes, mode } = options;
-  const dir = path.dirname(abs);
-  const temp = path.join(dir, `.${path.basename(abs)}.noisewise-${process.pid}-${Date.now().toString(36)}.tmp`);
+  let target = abs;
+  try {
+    target = fs.realpathSync(abs);
+  } catch {
+    // A path that does not resolve is written as named (the rename below reports what is wrong with it).
+  }
+  let owner: { uid: number; gid: number } | null = null;
+  try {
+    const stat = fs.statSync(target);
+    owner = { uid: stat.uid, gid: stat.gid };
+  } catch {
+    // A new file keeps the process's owner.
+  }
+  const dir = path.dirname(target);
+  const temp = path.join(dir, `.${path.basename(target)}.noisewise-${process.pid}-${Date.now().toString(36)}.tmp`);
   let fd: number | null = null;
   try {
     fd = fs.openSync(temp, 'wx', mode);
     fs.writeSync(fd, bytes);
     fs.fchmodSync(fd, mode);
+    if (owner && (owner.uid !== process.getuid?.() || owner.gid !== process.getgid?.())) {
+      try {
+        fs.fchownSync(fd, owner.uid, owner.gid);
+      } catch {
+        // Only a privileged process may give a file away; otherwise the rewritten file is the writer's.
+      }
+    }
     fs.fsyncSync(fd);
     fs.closeSync(fd);
     fd = null;
-    fs.renameSync(temp, abs);
+    fs.renameSync(temp, target);
   } catch (error) {
     if (fd !== null) fs.closeSync(fd);
     fs.rmSync(temp, { force: true });

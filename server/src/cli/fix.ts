@@ -96,12 +96,12 @@ export function rewriteFile(report: FileReport, edits: readonly TextEdit[], styl
   if (report.kind === 'notebook') {
     const model = report.notebook;
     if (!model) throw new Error('the notebook could not be read, so it cannot be fixed');
-    const copy = { ...model, json: structuredClone(model.json) };
     const out = applyNotebookEdits(
-      copy,
+      model,
       edits.map((e) => ({ start: e.start, end: e.end, newText: e.newText })),
     );
-    return toEol(out);
+    // Spliced into the file's own text, the output already has the file's line breaks everywhere.
+    return model.raw === undefined ? toEol(out) : out;
   }
   let text = report.text;
   const ordered = [...edits].sort((a, b) => b.start - a.start);

@@ -1,8 +1,8 @@
 // Entry point of the bundle (server/dist/noisewise.js): wires the real engine and rule registry into the CLI and sets the exit code.
 import { allRules } from '../../../rules/index';
-import { checkSources } from '../engine/check';
 import { runServerCommand } from '../lsp/server';
 import { processIo } from './io';
+import { checkSourcesInParallel, isCheckWorker, runCheckWorker } from './parallel';
 import { runCli } from './run';
 
 // `noisewise server --stdio` (the language server) is dispatched here, before the CLI's argument parser, because
@@ -14,9 +14,10 @@ process.stdout.on('error', (error: NodeJS.ErrnoException) => {
   throw error;
 });
 
-if (process.argv[2] === 'server') runServerCommand(process.argv.slice(3));
+if (isCheckWorker()) runCheckWorker();
+else if (process.argv[2] === 'server') runServerCommand(process.argv.slice(3));
 else
-  void runCli(process.argv.slice(2), processIo(), { rules: allRules, checkSources }).then(
+  void runCli(process.argv.slice(2), processIo(), { rules: allRules, checkSources: checkSourcesInParallel }).then(
   (code) => {
     process.exitCode = code;
   },

@@ -50,6 +50,11 @@ export interface RuleContext {
   replaceRange(inFileOf: SyntaxNode, start: number, end: number, newText: string): TextEdit;
   /** A location in whichever workspace file holds the node, for a finding's related information. */
   related(node: SyntaxNode, message: string): RelatedLocation;
+  /**
+   * Stops the rule (by throwing an error the engine catches) once the file's analysis budget is spent. Cheap enough
+   * to call on every iteration of an expensive loop; the semantic queries already call it.
+   */
+  checkBudget(): void;
 }
 
 /** Node listeners keyed by tree-sitter node type; `file:end` runs after the walk. */

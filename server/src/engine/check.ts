@@ -6,8 +6,9 @@ import { createParser, initParser } from '../parse/parser';
 import { LineIndex } from '../parse/positions';
 import type { SyntaxNode } from '../parse/syntax';
 import { Semantics } from '../semantic/queries';
-import { type FileAnalysis, Workspace } from '../semantic/workspace';
+import { type FileAnalysis, Workspace, type WorkspaceFile } from '../semantic/workspace';
 import type { RuleContext, RuleListeners } from './api';
+import { BudgetExceededError, DEFAULT_FILE_BUDGET_MS, Deadline, formatSeconds } from './budget';
 import { type Finding, type Severity, SEVERITY_RANK, type TextEdit } from './finding';
 import { collectSuppressions, isSuppressed } from './suppress';
 import type { CheckInput, EngineSettings, FileNote, FileReport, RuleSelection } from './types';
@@ -29,6 +30,16 @@ export interface CheckOptions {
   workspaceRoot: string;
   settingsFor(absPath: string): EngineSettings;
   rules?: RuleSelection;
+  /** Milliseconds each rule may spend on one file before its partial findings are kept with a note (default 30 s). */
+  budgetMs?: number;
+}
+
+/** Limits of one file's check. */
+export interface CheckLimits {
+  /** Milliseconds each rule may spend on the file (DEFAULT_FILE_BUDGET_MS when omitted); see engine/budget.ts. */
+  budgetMs?: number;
+  /** The clock, in milliseconds (tests pass a fake one). */
+  now?: () => number;
 }
 
 /** Checks files as one workspace (imports between them resolve) and returns one report per input, in input order. */
@@ -36,7 +47,7 @@ export async function checkSources(inputs: CheckInput[], options: CheckOptions):
   const parser = await getParser();
   const workspace = new Workspace(path.resolve(options.workspaceRoot), () => parser);
   for (const input of inputs) workspace.setFile(input);
-  return inputs.map((input) => checkFile(workspace, path.resolve(input.absPath), options.settingsFor(input.absPath), options.rules));
+  return inputs.map((input) => checkFile(workspace, path.resolve(input.absPath), options.settingsFor(input.absPath), options.rules, { budgetMs: options.budgetMs }));
 }
 
 /** The rules that run for a selection and settings, with their effective severities. */
@@ -54,9 +65,23 @@ export function enabledRules(settings: EngineSettings, selection?: RuleSelection
   return out;
 }
 
-/** Checks one file of a workspace. Rules that throw are contained to this file. */
-export function checkFile(workspace: Workspace, absPath: string, settings: EngineSettings, selection?: RuleSelection): FileReport {
-  const analysis = workspace.analysis(absPath);
+/**
+ * Checks one file of a workspace. Rules that throw are contained to this file; so is a failure while building the
+ * file's syntax or semantic model (the report then has one internal-error finding and a note). A file whose analysis
+ * outlasts its budget yields the findings made so far and a `budget` note.
+ */
+export function checkFile(workspace: Workspace, absPath: string, settings: EngineSettings, selection?: RuleSelection, limits: CheckLimits = {}): FileReport {
+  const entry = workspace.file(absPath);
+  if (!entry) throw new Error(`noisewise: ${absPath} is not part of the workspace`);
+  // Between file checks (never during one) the workspace may drop analyses it holds beyond its cache limit.
+  workspace.trimCache();
+  let analysis: FileAnalysis | null;
+  try {
+    analysis = workspace.analysis(absPath);
+  } catch (error) {
+    // Contained to this file: the rest of the run goes on.
+    return failedReport(entry, `noisewise could not analyse this file: ${describe(error)}`);
+  }
   if (!analysis) throw new Error(`noisewise: ${absPath} is not part of the workspace`);
   const file = analysis.file;
   const notes: FileNote[] = [];
@@ -70,12 +95,34 @@ export function checkFile(workspace: Workspace, absPath: string, settings: Engin
     const where = new LineIndex(analysis.text).toCli(first.start);
     notes.push({ level: 'info', kind: 'syntax', message: `${analysis.syntax.errors.length} syntax error(s), the first at line ${where.line}; the rest of the file was still analysed` });
   }
-  const findings = runRules(workspace, analysis, settings, selection, notes);
+  let findings: Finding[];
+  try {
+    // The clock starts after parsing and building the model, which take time in proportion to the file's size.
+    findings = runRules(workspace, analysis, settings, selection, notes, new Deadline(limits.budgetMs ?? DEFAULT_FILE_BUDGET_MS, limits.now));
+  } catch (error) {
+    // A failure outside the rules' listeners (suppressions, sorting …) is contained to this file too.
+    workspace.memo.clear();
+    return failedReport(entry, `noisewise could not finish checking this file: ${describe(error)}`, analysis);
+  }
   return { ...base, findings, notes };
 }
 
-function runRules(workspace: Workspace, analysis: FileAnalysis, settings: EngineSettings, selection: RuleSelection | undefined, notes: FileNote[]): Finding[] {
-  const sem = new Semantics(workspace, analysis);
+/** The report of a file whose check failed outside the rules: one internal-error finding and a note. */
+function failedReport(file: WorkspaceFile, message: string, analysis?: FileAnalysis): FileReport {
+  const finding: Finding = { rule: 'internal-error', severity: 'error', path: file.path, start: 0, end: 0, message, messageId: 'internal-error', figures: [], fixes: [], related: [] };
+  return {
+    path: file.path,
+    absPath: file.absPath,
+    kind: file.kind,
+    text: analysis?.text ?? '',
+    notebook: analysis?.notebook ?? null,
+    findings: [finding],
+    notes: [{ level: 'error', kind: 'internal', message }],
+  };
+}
+
+function runRules(workspace: Workspace, analysis: FileAnalysis, settings: EngineSettings, selection: RuleSelection | undefined, notes: FileNote[], deadline: Deadline): Finding[] {
+  const sem = new Semantics(workspace, analysis, deadline);
   const lines = new LineIndex(analysis.text);
   const datasetSizeNames = [...DEFAULT_DATASET_SIZE_NAMES, ...settings.datasetSizeNames];
   const pathOfNode = (node: SyntaxNode): string => workspace.analysisOfNode(node)?.file.path ?? analysis.file.path;
@@ -115,6 +162,7 @@ function runRules(workspace: Workspace, analysis: FileAnalysis, settings: Engine
       replace: (node, newText): TextEdit => ({ path: pathOfNode(node), start: node.start, end: node.end, newText }),
       replaceRange: (inFileOf, start, end, newText): TextEdit => ({ path: pathOfNode(inFileOf), start, end, newText }),
       related: (node, message) => ({ path: pathOfNode(node), start: node.start, end: node.end, message }),
+      checkBudget: () => deadline.check(),
     };
     let listeners: RuleListeners;
     try {
@@ -134,26 +182,58 @@ function runRules(workspace: Workspace, analysis: FileAnalysis, settings: Engine
     }
   }
 
-  // One walk: the node array is in preorder, so a linear scan visits parents before children.
-  for (const node of analysis.syntax.nodes) {
-    const listeners = dispatch.get(node.type);
-    if (!listeners) continue;
-    for (const { id, fn } of listeners) {
-      if (failed.has(id)) continue;
-      try {
-        fn(node);
-      } catch (error) {
-        failed.set(id, describe(error));
-      }
-    }
-  }
-  for (const { id, fn } of finishers) {
-    if (failed.has(id)) continue;
+  // One walk: the node array is in preorder, so a linear scan visits parents before children. The budget is checked
+  // here and inside the semantic queries rules call: a rule that spends its own budget stops (its findings so far
+  // stay) while the others go on; when the file's time is up, every rule stops.
+  const stopped = new Map<string, SyntaxNode>();
+  let fileStoppedAt: SyntaxNode | null = null;
+  const call = (id: string, at: SyntaxNode, fn: () => void): void => {
+    deadline.enter(id);
     try {
       fn();
     } catch (error) {
-      failed.set(id, describe(error));
+      if (error instanceof BudgetExceededError) stopped.set(id, at);
+      else {
+        failed.set(id, describe(error));
+        // A query may have left a provisional memo entry behind: forget them all rather than trust one.
+        workspace.memo.clear();
+      }
+    } finally {
+      deadline.leave();
     }
+    if (!stopped.has(id) && deadline.ruleSpent(id)) stopped.set(id, at);
+  };
+  walk: for (const node of analysis.syntax.nodes) {
+    const listeners = dispatch.get(node.type);
+    if (!listeners) continue;
+    for (const { id, fn } of listeners) {
+      if (failed.has(id) || stopped.has(id)) continue;
+      if (deadline.fileSpent()) {
+        fileStoppedAt = node;
+        break walk;
+      }
+      call(id, node, () => fn(node));
+    }
+  }
+  for (const { id, fn } of finishers) {
+    if (fileStoppedAt !== null || failed.has(id) || stopped.has(id)) continue;
+    if (deadline.fileSpent()) {
+      fileStoppedAt = analysis.syntax.root;
+      break;
+    }
+    call(id, analysis.syntax.root, fn);
+  }
+  if (fileStoppedAt !== null || stopped.size > 0) {
+    // Queries interrupted half-way may have left provisional memo entries; later files must not see them.
+    workspace.memo.clear();
+    const where = (node: SyntaxNode): string => (node === analysis.syntax.root ? 'before its end-of-file checks' : `at line ${lines.toCli(node.start).line}`);
+    const parts: string[] = [];
+    if (stopped.size > 0) {
+      const list = [...stopped].sort((a, b) => (a[0] < b[0] ? -1 : 1)).map(([id, node]) => `${id} ${where(node)}`);
+      parts.push(`${stopped.size === 1 ? 'rule' : 'rules'} ${list.join(', ')} stopped after the time budget of ${formatSeconds(deadline.budgetMs)} per rule`);
+    }
+    if (fileStoppedAt !== null) parts.push(`every rule stopped ${where(fileStoppedAt)} after the file's time limit of ${formatSeconds(deadline.fileLimitMs)}`);
+    notes.push({ level: 'warning', kind: 'budget', message: `analysis cut short: ${parts.join('; ')}; findings later in the file may be missing` });
   }
 
   const suppressions = collectSuppressions(analysis.syntax, lines);

@@ -15,8 +15,11 @@ export interface CheckInput {
 /** Something the engine has to say about a whole file rather than a place in it. */
 export interface FileNote {
   level: 'error' | 'warning' | 'info';
-  /** `skipped`: not analysed (broken notebook, binary …); `syntax`: parse errors, analysis went on; `internal`: a rule failed. */
-  kind: 'skipped' | 'syntax' | 'internal';
+  /**
+   * `skipped`: not analysed (broken notebook, binary …); `syntax`: parse errors, analysis went on; `internal`: a rule
+   * (or the analysis itself) failed; `budget`: the analysis ran out of time and its findings are partial.
+   */
+  kind: 'skipped' | 'syntax' | 'internal' | 'budget';
   message: string;
 }
 

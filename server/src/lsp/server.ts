@@ -37,6 +37,7 @@ import {
 import { allRules, type RegisteredRule } from '../../../rules/index';
 import { collectFiles, readSourceFile, sourceKind } from '../cli/files';
 import { ruleHelpUri, VERSION } from '../cli/product';
+import { budgetFromEnv } from '../engine/budget';
 import { checkFile, getParser } from '../engine/check';
 import { ConfigError, clearConfigCache, isExcluded, loadConfigFor, type ResolvedConfig } from '../engine/config';
 import type { Finding } from '../engine/finding';
@@ -52,6 +53,12 @@ import { type DocumentRef, FileView } from './ranges';
 import { defaultRulePagesCache, RulePages } from './rule-pages';
 import { defaultEditorSettings, type EditorSettings, isExcludedByEditor, mergeSettings, parseEditorSettings } from './settings';
 import { documentPath, fileUriToPath, isInside, pathToUri } from './uris';
+
+/**
+ * Time one file's check may block the server (in milliseconds) before its partial findings are served with a note;
+ * `NOISEWISE_FILE_BUDGET_MS` overrides it.
+ */
+export const SERVER_FILE_BUDGET_MS = 5_000;
 
 /** The command (workspace/executeCommand) that re-reads and re-checks every workspace folder. */
 export const CHECK_WORKSPACE_COMMAND = 'noisewise.server.checkWorkspace';
@@ -162,6 +169,9 @@ export class NoisewiseServer {
   private reindexTimer: NodeJS.Timeout | null = null;
   private refreshTimer: NodeJS.Timeout | null = null;
   private readonly shownConfigErrors = new Set<string>();
+  /** Notes about files (skipped, partly analysed, a rule failed) already written to the log, so each is logged once. */
+  private readonly loggedNotes = new Set<string>();
+  private readonly budgetMs = budgetFromEnv(process.env, SERVER_FILE_BUDGET_MS);
   /** Files edited since their dependents were last invalidated (see `syncFile`). */
   private readonly pendingDependents = new Set<string>();
   private shuttingDown = false;
@@ -494,7 +504,7 @@ export class NoisewiseServer {
     } else {
       let report: FileReport;
       try {
-        report = checkFile(workspace, absPath, this.settingsFor(absPath));
+        report = checkFile(workspace, absPath, this.settingsFor(absPath), undefined, { budgetMs: this.budgetMs });
       } catch (error) {
         // An engine failure outside the rules (which are contained by the engine) is contained to this file.
         this.connection.console.error(`checking ${absPath} failed: ${(error as Error)?.stack ?? String(error)}`);
@@ -513,11 +523,35 @@ export class NoisewiseServer {
         };
         report = { path: absPath, absPath, kind: absPath.endsWith('.ipynb') ? 'notebook' : 'python', text: analysis?.text ?? '', notebook: analysis?.notebook ?? null, findings: [internal], notes: [] };
       }
-      const byUri = toDiagnostics(report.findings, this.view(absPath, report.text, report.notebook), this.diagnosticContext());
+      const byUri = toDiagnostics(this.withNotes(absPath, report), this.view(absPath, report.text, report.notebook), this.diagnosticContext());
       result = { report, byUri, resultIds: new Map([...byUri].map(([uri, list]) => [uri, resultId(list)])) };
     }
     this.results.set(absPath, result);
     return result;
+  }
+
+  /**
+   * The findings to show for a report: its own, plus one information diagnostic at the top of the file when the
+   * analysis ran out of time (its findings are partial). Notes about skipped files, partial analyses and failed rules
+   * also go to the log, once each.
+   */
+  private withNotes(absPath: string, report: FileReport): Finding[] {
+    const extra: Finding[] = [];
+    for (const note of report.notes) {
+      if (note.kind === 'syntax') continue;
+      const key = `${absPath}\0${note.kind}\0${note.message}`;
+      if (!this.loggedNotes.has(key)) {
+        this.loggedNotes.add(key);
+        const line = `${absPath}: ${note.kind === 'skipped' ? 'skipped, ' : ''}${note.message}`;
+        if (note.level === 'info') this.connection.console.info(line);
+        else if (note.level === 'warning') this.connection.console.warn(line);
+        else this.connection.console.error(line);
+      }
+      if (note.kind === 'budget' || note.kind === 'skipped') {
+        extra.push({ rule: 'noisewise', severity: 'information', path: absPath, start: 0, end: 0, message: `noisewise: ${note.message}`, messageId: note.kind, figures: [], fixes: [], related: [] });
+      }
+    }
+    return extra.length === 0 ? report.findings : [...extra, ...report.findings];
   }
 
   /** Pushes a file's diagnostics (push mode), clearing documents of the file that no longer have any. */
@@ -807,7 +841,7 @@ export class NoisewiseServer {
       const syntax = this.workspaceFor(absPath).analysis(absPath)?.syntax ?? null;
       const context = this.diagnosticContext();
       for (const finding of report.findings) {
-        if (finding.end < from || finding.start > to || finding.messageId === 'internal-error') continue;
+        if (finding.end < from || finding.start > to || finding.messageId === 'internal-error' || finding.rule === 'internal-error') continue;
         const location = view.location(finding.start, finding.end);
         if (!location || location.ref.uri !== uri) continue;
         const converted = toDiagnostics([finding], view, context).get(uri)?.[0];
@@ -840,7 +874,7 @@ export class NoisewiseServer {
         raw: original,
         recheck: (raw) => {
           workspace.setFile({ path: absPath, absPath, text: raw });
-          return checkFile(workspace, absPath, settings);
+          return checkFile(workspace, absPath, settings, undefined, { budgetMs: this.budgetMs });
         },
       });
     } finally {

@@ -25,6 +25,11 @@ export interface NotebookModel {
   /** Indentation used by the file (nbformat writes 1 space), and whether it ends with a newline. */
   indent: string | number;
   trailingNewline: boolean;
+  /**
+   * The notebook file's text as read. Fixes splice new `source` values into it, so every byte outside the changed
+   * cells' sources stays as it was (number spellings, escapes, key order, line breaks).
+   */
+  raw?: string;
 }
 
 /** A broken notebook: the message says what is wrong, for the CLI and the editor to show. */
@@ -66,6 +71,7 @@ export function readNotebook(raw: string): NotebookModel {
   });
   const indentMatch = /^\{\r?\n([ \t]+)"/.exec(raw);
   return {
+    raw,
     text: parts.join(''),
     cells,
     json: doc,
@@ -152,8 +158,9 @@ export interface VirtualEdit {
 
 /**
  * Applies edits (virtual-module offsets, non-overlapping) to the cells' sources and returns the new notebook file
- * text. Only the `source` of the cells an edit touches changes; key order, other fields, indentation and the
- * trailing newline are kept. An edit that spans two cells is refused.
+ * text. Only the `source` of the cells an edit touches changes: the new values are spliced into the file's text in
+ * the file's own layout (list or string, indentation, line breaks), and every other byte is kept. An edit that spans
+ * two cells is refused. The model is not changed.
  */
 export function applyNotebookEdits(model: NotebookModel, edits: VirtualEdit[]): string {
   const byCell = new Map<VirtualCell, VirtualEdit[]>();
@@ -165,17 +172,127 @@ export function applyNotebookEdits(model: NotebookModel, edits: VirtualEdit[]): 
     list.push({ start: at.offset, end: at.offset + (edit.end - edit.start), newText: edit.newText });
     byCell.set(at.cell, list);
   }
-  const json = model.json;
-  const cells = json.cells as Record<string, unknown>[];
+  const newSources = new Map<VirtualCell, string>();
   for (const [cell, cellEdits] of byCell) {
     cellEdits.sort((a, b) => b.start - a.start);
     let text = cell.source;
     for (const e of cellEdits) text = text.slice(0, e.start) + e.newText + text.slice(e.end);
-    const target = cells[cell.index]!;
-    target.source = cell.sourceIsList ? splitSourceLines(text) : text;
+    newSources.set(cell, text);
   }
+  const spliced = model.raw === undefined ? null : spliceSources(model, model.raw, newSources);
+  if (spliced !== null) return spliced;
+  // No text to splice into (or a changed cell without a "source" key): write the whole document out again.
+  const json = structuredClone(model.json);
+  const cells = json.cells as Record<string, unknown>[];
+  for (const [cell, text] of newSources) cells[cell.index]!.source = cell.sourceIsList ? splitSourceLines(text) : text;
   const out = JSON.stringify(json, null, model.indent);
   return model.trailingNewline ? out + '\n' : out;
+}
+
+/** Replaces the `source` values of the given cells inside the file's text; null when a cell has no `source` key. */
+function spliceSources(model: NotebookModel, raw: string, newSources: ReadonlyMap<VirtualCell, string>): string | null {
+  const spans = cellSourceSpans(raw);
+  const eol = /\r\n/.test(raw) ? '\r\n' : '\n';
+  const unit = typeof model.indent === 'number' ? ' '.repeat(model.indent) : model.indent;
+  const replacements: { start: number; end: number; text: string }[] = [];
+  for (const [cell, text] of newSources) {
+    const span = spans.get(cell.index);
+    if (!span) return null;
+    const before = raw.slice(span.start, span.end);
+    let value: string;
+    if (!cell.sourceIsList) value = JSON.stringify(text);
+    else {
+      const items = splitSourceLines(text).map((line) => JSON.stringify(line));
+      const lineStart = Math.max(raw.lastIndexOf('\n', span.start - 1), raw.lastIndexOf('\r', span.start - 1)) + 1;
+      const keyIndent = /^[ \t]*/.exec(raw.slice(lineStart, span.start))![0];
+      // nbformat writes one item per line, one indentation unit deeper than the key; a one-line list stays on one line.
+      const multiLine = before.includes('\n') || (before.replace(/\s/g, '') === '[]' && unit !== '' && raw.includes('\n'));
+      if (items.length === 0) value = '[]';
+      else if (multiLine) value = `[${eol}${items.map((item) => `${keyIndent}${unit}${item}`).join(`,${eol}`)}${eol}${keyIndent}]`;
+      else value = `[${items.join(before.includes('", "') ? ', ' : ',')}]`;
+    }
+    replacements.push({ start: span.start, end: span.end, text: value });
+  }
+  replacements.sort((a, b) => b.start - a.start);
+  let out = raw;
+  for (const r of replacements) out = out.slice(0, r.start) + r.text + out.slice(r.end);
+  return out;
+}
+
+/**
+ * Where each cell's `source` value lies in a notebook's JSON text (offsets of the value, by index into `cells`). One
+ * iterative scan with an explicit stack, so deeply nested outputs cannot overflow the stack; the text must be JSON
+ * that parsed.
+ */
+export function cellSourceSpans(raw: string): Map<number, { start: number; end: number }> {
+  type Role = 'root' | 'cells' | 'cell' | 'source' | 'other';
+  interface Frame {
+    array: boolean;
+    role: Role;
+    /** The key whose value comes next (objects), or null while a key is expected. */
+    key: string | null;
+    /** Elements before the current one (arrays). */
+    count: number;
+    /** The cell index (for a cell object and its source value). */
+    cell: number;
+    start: number;
+  }
+  const spans = new Map<number, { start: number; end: number }>();
+  const stack: Frame[] = [];
+  const roleOfValue = (): { role: Role; cell: number } => {
+    const top = stack[stack.length - 1];
+    if (!top) return { role: 'root', cell: -1 };
+    if (top.role === 'root' && !top.array && top.key === 'cells') return { role: 'cells', cell: -1 };
+    if (top.role === 'cells' && top.array) return { role: 'cell', cell: top.count };
+    if (top.role === 'cell' && !top.array && top.key === 'source') return { role: 'source', cell: top.cell };
+    return { role: 'other', cell: -1 };
+  };
+  const scalar = (start: number, end: number): void => {
+    const { role, cell } = roleOfValue();
+    if (role === 'source') spans.set(cell, { start, end });
+  };
+  let i = raw.charCodeAt(0) === 0xfeff ? 1 : 0;
+  while (i < raw.length) {
+    const c = raw[i]!;
+    if (c === ' ' || c === '\n' || c === '\r' || c === '\t' || c === ':') {
+      i++;
+      continue;
+    }
+    const top = stack[stack.length - 1];
+    if (c === '"') {
+      let end = i + 1;
+      while (end < raw.length && raw[end] !== '"') end += raw[end] === '\\' ? 2 : 1;
+      end++;
+      if (top && !top.array && top.key === null) top.key = JSON.parse(raw.slice(i, end)) as string;
+      else scalar(i, end);
+      i = end;
+      continue;
+    }
+    if (c === ',') {
+      if (top?.array) top.count++;
+      else if (top) top.key = null;
+      i++;
+      continue;
+    }
+    if (c === '{' || c === '[') {
+      const { role, cell } = roleOfValue();
+      stack.push({ array: c === '[', role, key: null, count: 0, cell, start: i });
+      i++;
+      continue;
+    }
+    if (c === '}' || c === ']') {
+      const frame = stack.pop();
+      if (frame?.role === 'source') spans.set(frame.cell, { start: frame.start, end: i + 1 });
+      i++;
+      continue;
+    }
+    // A number, true, false or null.
+    let end = i;
+    while (end < raw.length && !/[\s,\]}]/.test(raw[end]!)) end++;
+    scalar(i, end);
+    i = end;
+  }
+  return spans;
 }
 
 /** Splits a cell source the way nbformat stores it: each line keeps its newline, the last one may not. */

@@ -483,41 +483,60 @@ export class ModuleAnalysis {
     for (const target of targets) this.bindTargets(target, value, this.scopeOf(node), value ? 'assign' : 'annotation', false, annotation);
   }
 
-  /** Binds assignment targets, matching tuple targets to tuple values element by element where possible. */
+  /**
+   * Binds assignment targets, matching tuple targets to tuple values element by element where possible. Nested
+   * targets are handled with an explicit stack in source order (no recursion: `((((a,),),),) = …` may nest deeply).
+   */
   private bindTargets(target: SyntaxNode, value: SyntaxNode | null, scope: Scope, kind: BindingKind, iterated: boolean, annotation: SyntaxNode | null = null): void {
-    switch (target.type) {
-      case 'identifier':
-        this.addBinding(target, kind, value, scope, { iterated: iterated || undefined, annotation });
-        return;
-      case 'attribute':
-        if (!iterated) this.bindAttribute(target, value);
-        return;
-      case 'pattern_list':
-      case 'tuple_pattern':
-      case 'list_pattern':
-      case 'expression_list':
-      case 'tuple':
-      case 'list': {
-        const elements = target.namedChildren;
-        const values = value && !iterated && isSequenceLiteral(value) ? unwrapParens(value).namedChildren : null;
-        elements.forEach((element, index) => {
-          if (values && values.length === elements.length) this.bindTargets(element, values[index]!, scope, kind, iterated);
-          else if (element.type === 'identifier') {
-            this.addBinding(element, kind, null, scope, value ? { unpack: { from: value, index }, iterated: iterated || undefined } : {});
-          } else if (element.type === 'list_splat_pattern') {
-            const id = element.namedChildren[0];
-            if (id?.type === 'identifier') this.addBinding(id, kind, null, scope);
-          } else this.bindTargets(element, null, scope, kind, iterated);
-        });
-        return;
+    type Work = { target: SyntaxNode; value: SyntaxNode | null; annotation: SyntaxNode | null } | { element: SyntaxNode; unpack: { from: SyntaxNode; index: number } | null };
+    const stack: Work[] = [{ target, value, annotation }];
+    while (stack.length > 0) {
+      const work = stack.pop()!;
+      if ('element' in work) {
+        // An element of a tuple target whose value is not a literal tuple of the same length.
+        const element = work.element;
+        if (element.type === 'identifier') this.addBinding(element, kind, null, scope, work.unpack ? { unpack: work.unpack, iterated: iterated || undefined } : {});
+        else {
+          const id = element.namedChildren[0];
+          if (id?.type === 'identifier') this.addBinding(id, kind, null, scope);
+        }
+        continue;
       }
-      case 'parenthesized_expression': {
-        const inner = target.namedChildren[0];
-        if (inner) this.bindTargets(inner, value, scope, kind, iterated, annotation);
-        return;
+      const t = work.target;
+      switch (t.type) {
+        case 'identifier':
+          this.addBinding(t, kind, work.value, scope, { iterated: iterated || undefined, annotation: work.annotation });
+          break;
+        case 'attribute':
+          if (!iterated) this.bindAttribute(t, work.value);
+          break;
+        case 'pattern_list':
+        case 'tuple_pattern':
+        case 'list_pattern':
+        case 'expression_list':
+        case 'tuple':
+        case 'list': {
+          const elements = t.namedChildren;
+          const v = work.value;
+          const values = v && !iterated && isSequenceLiteral(v) ? unwrapParens(v).namedChildren : null;
+          const items: Work[] = elements.map((element, index): Work => {
+            if (values && values.length === elements.length) return { target: element, value: values[index]!, annotation: null };
+            if (element.type === 'identifier') return { element, unpack: v ? { from: v, index } : null };
+            if (element.type === 'list_splat_pattern') return { element, unpack: null };
+            return { target: element, value: null, annotation: null };
+          });
+          // Pushed in reverse so that the elements are bound in source order.
+          for (let i = items.length - 1; i >= 0; i--) stack.push(items[i]!);
+          break;
+        }
+        case 'parenthesized_expression': {
+          const inner = t.namedChildren[0];
+          if (inner) stack.push({ target: inner, value: work.value, annotation: work.annotation });
+          break;
+        }
+        default:
+          break;
       }
-      default:
-        return;
     }
   }
 

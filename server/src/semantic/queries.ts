@@ -59,12 +59,53 @@ const SELF_RETURNING_METHODS = new Set(['to', 'cuda', 'cpu', 'train', 'eval', 'd
 
 const MAX_DEPTH = 12;
 
+/**
+ * How deeply the recursive queries may nest inside each other. Each has its own small depth bound, but they call
+ * one another (`callee` → `typeOf` of the receiver → `callee` of that call …) and on a chain of thousands of method
+ * calls the bounds would not stop the stack from overflowing; real code never comes near this.
+ */
+const MAX_NESTING = 100;
+
+/** What the queries check on their way in: the engine's per-file deadline (see engine/budget.ts). */
+export interface QueryBudget {
+  /** Throws once the file's analysis budget is spent. */
+  check(): void;
+}
+
 /** Semantic queries over a workspace, from the point of view of one file. */
 export class Semantics {
+  /** Queries currently running inside each other (see MAX_NESTING). */
+  private nesting = 0;
+
   constructor(
     readonly workspace: Workspace,
     readonly analysis: FileAnalysis,
+    /** The per-file deadline, checked by the recursive queries (none when omitted). */
+    private readonly budget: QueryBudget | null = null,
   ) {}
+
+  /**
+   * Throws (an error the engine catches) once the file's analysis budget is spent. Cheap: the clock is read on every
+   * 64th call. The queries call it themselves; a rule calls it in loops that ask no query.
+   */
+  checkBudget(): void {
+    this.budget?.check();
+  }
+
+  /**
+   * Runs a recursive query one level deeper, or returns `fallback` when the nesting bound is reached; checks the
+   * deadline on the way in.
+   */
+  private nested<T>(fallback: T, run: () => T): T {
+    this.budget?.check();
+    if (this.nesting >= MAX_NESTING) return fallback;
+    this.nesting++;
+    try {
+      return run();
+    } finally {
+      this.nesting--;
+    }
+  }
 
   /** The module model of the file being checked. */
   get module(): ModuleAnalysis {
@@ -84,6 +125,7 @@ export class Semantics {
 
   /** Bindings that may reach an identifier. */
   bindings(identifier: SyntaxNode): Binding[] {
+    this.budget?.check();
     return this.moduleOf(identifier).resolveName(identifier);
   }
 
@@ -93,6 +135,10 @@ export class Semantics {
    */
   qualifiedName(expr: SyntaxNode, depth = 0): string | null {
     if (depth > MAX_DEPTH) return null;
+    return this.nested(null, () => this.qualifiedNameNested(expr, depth));
+  }
+
+  private qualifiedNameNested(expr: SyntaxNode, depth: number): string | null {
     const node = unwrapParens(expr);
     if (node.type === 'identifier') {
       const bindings = this.bindings(node);
@@ -137,10 +183,13 @@ export class Semantics {
   callee(call: SyntaxNode): Callee {
     const fn = call.child('function');
     if (!fn) return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
+    this.budget?.check();
     const memo = this.workspace.memoTable<SyntaxNode, Callee>('callee');
     const cached = memo.get(call);
     if (cached) return cached;
-    const result = this.calleeUncached(call, fn);
+    const result = this.nested(null, () => this.calleeUncached(call, fn));
+    // An answer cut short by the nesting bound is not remembered: asked again from shallower, it may be complete.
+    if (result === null) return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
     memo.set(call, result);
     return result;
   }
@@ -186,6 +235,7 @@ export class Semantics {
   /** Resolves a dotted qualified name to a workspace class, function, module or module-level value. */
   symbolOfQualifiedName(qualifiedName: string, fromAbsPath?: string, depth = 0): ResolvedSymbol | null {
     if (depth > MAX_DEPTH) return null;
+    this.budget?.check();
     const memoKey = `${fromAbsPath ?? ''}|${qualifiedName}`;
     const memo = this.workspace.memoTable<string, ResolvedSymbol | null>('symbol');
     if (memo.has(memoKey)) return memo.get(memoKey)!;
@@ -257,7 +307,11 @@ export class Semantics {
 
   /** The class and its workspace ancestors, in method-resolution order (depth-first, left to right, no repeats). */
   ancestry(cls: ClassInfo): ClassInfo[] {
+    const memo = this.workspace.memoTable<ClassInfo, ClassInfo[]>('ancestry');
+    const cached = memo.get(cls);
+    if (cached) return cached;
     const out: ClassInfo[] = [];
+    memo.set(cls, out);
     const visit = (c: ClassInfo, depth: number) => {
       if (depth > MAX_DEPTH || out.includes(c)) return;
       out.push(c);
@@ -301,7 +355,11 @@ export class Semantics {
 
   /** Workspace classes that derive from a class (in any analysed file of the workspace), the class included. */
   subclassesOf(cls: ClassInfo): ClassInfo[] {
+    const memo = this.workspace.memoTable<ClassInfo, ClassInfo[]>('subclassesOf');
+    const cached = memo.get(cls);
+    if (cached) return cached;
     const out: ClassInfo[] = [cls];
+    memo.set(cls, out);
     for (const file of this.workspace.dependentsOf(cls.module.syntax === this.analysis.syntax ? this.analysis.file.absPath : (this.workspace.analysisOfNode(cls.node)?.file.absPath ?? this.analysis.file.absPath))) {
       const analysis = this.workspace.analysis(file);
       if (!analysis) continue;
@@ -332,6 +390,10 @@ export class Semantics {
    * their return expressions, calls of workspace functions to their returns. Anything else is its own origin.
    */
   origins(expr: SyntaxNode, depth = 0, seen: Set<SyntaxNode> = new Set()): Origin[] {
+    return this.nested([], () => this.originsNested(expr, depth, seen));
+  }
+
+  private originsNested(expr: SyntaxNode, depth: number, seen: Set<SyntaxNode>): Origin[] {
     const node = unwrapParens(expr);
     if (depth > MAX_DEPTH || seen.has(node)) return [];
     seen.add(node);
@@ -391,11 +453,17 @@ export class Semantics {
   /** The type of a value: an instance of a workspace class or of a library class, when it can be told. */
   typeOf(expr: SyntaxNode, depth = 0): ValueType | null {
     if (depth > MAX_DEPTH) return null;
+    this.budget?.check();
     const node = unwrapParens(expr);
     const memo = this.workspace.memoTable<SyntaxNode, ValueType | null>('typeOf');
     if (memo.has(node)) return memo.get(node)!;
     memo.set(node, null);
-    const result = this.typeOfUncached(node, depth);
+    const result = this.nested(undefined, () => this.typeOfUncached(node, depth));
+    // An answer cut short by the nesting bound is not remembered (see callee).
+    if (result === undefined) {
+      memo.delete(node);
+      return null;
+    }
     memo.set(node, result);
     return result;
   }

@@ -90,6 +90,17 @@ export class Workspace {
     return true;
   }
 
+  /**
+   * Records the modules a file imports without analysing it (a parallel check learns them from the worker that
+   * analysed the file), so that `dependentsOf` and `importsOf` need not parse files this process never checks.
+   */
+  setImportedModules(absPathIn: string, modules: readonly string[]): void {
+    const file = this.files.get(path.resolve(absPathIn));
+    if (!file || file.importedModules) return;
+    file.importedModules = [...modules];
+    this.memo.delete('workspace:importers');
+  }
+
   /** Removes a file; returns false when it was not known. */
   removeFile(absPathIn: string): boolean {
     const absPath = path.resolve(absPathIn);
@@ -128,11 +139,24 @@ export class Workspace {
     const analysis = this.analyse(file);
     this.analyses.set(absPath, analysis);
     this.moduleOwner.set(analysis.syntax, analysis);
+    return analysis;
+  }
+
+  /**
+   * Evicts the least recently used analyses beyond the cache limit. Called between file checks, never during one:
+   * a rule may hold classes and nodes of any file it looked at, and an analysis rebuilt in the middle of a check
+   * would give the same file new objects. Memo tables may hold evicted objects, so they are cleared when anything
+   * is evicted. Returns the number of analyses evicted.
+   */
+  trimCache(): number {
+    let evicted = 0;
     while (this.analyses.size > this.cacheLimit) {
       const oldest = this.analyses.keys().next().value as string;
       this.analyses.delete(oldest);
+      evicted++;
     }
-    return analysis;
+    if (evicted > 0) this.memo.clear();
+    return evicted;
   }
 
   /** The analysis a syntax node belongs to. */

@@ -1,0 +1,1 @@
+"""Bayes-by-backprop forecaster of river stage from upstream rainfall (invented gauges)."""
