@@ -68,6 +68,8 @@ const log = (s) => process.stderr.write(`[bench ${((performance.now() - started)
 
 const GNU_TIME = detectGnuTime();
 
+let timeFiles = 0;
+
 /** Process groups of the measured commands still running, stopped when the bench itself is stopped. */
 const running = new Set();
 const stopRunning = () => {
@@ -112,7 +114,8 @@ function readTimeReport(text) {
  */
 function measure(cmd, args, { cwd = root, okCodes = [0], timeoutMs = 900_000 } = {}) {
   return new Promise((resolve) => {
-    const timeFile = GNU_TIME ? path.join(os.tmpdir(), `noisewise-bench-time-${process.pid}-${Math.random().toString(36).slice(2)}.txt`) : null;
+    const timeFile = GNU_TIME ? path.join(benchDir, 'tmp', `time-${process.pid}-${++timeFiles}.txt`) : null;
+    if (timeFile) fs.mkdirSync(path.dirname(timeFile), { recursive: true });
     const argv = GNU_TIME ? ['-v', '-o', timeFile, cmd, ...args] : args;
     const t0 = performance.now();
     // Its own process group, so that a run stopped at the time budget is stopped with everything it started.

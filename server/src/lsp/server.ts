@@ -340,20 +340,26 @@ export class NoisewiseServer {
   }
 
   private async loadEditorSettings(pushed?: unknown): Promise<void> {
-    this.editorSettings.clear();
+    // The new settings are collected first and swapped in at once: checks that run while the client answers
+    // keep using the old settings instead of the defaults.
+    const next = new Map<string, EditorSettings>();
     const apply = (key: string, raw: unknown): void => {
       const { settings, problems } = parseEditorSettings(raw, this.ruleIds);
       for (const problem of problems) this.connection.console.warn(`settings: ${problem}`);
-      this.editorSettings.set(key, settings);
+      next.set(key, settings);
     };
     if (!this.features.configuration) {
       const section = pushed && typeof pushed === 'object' ? (pushed as Record<string, unknown>).noisewise : undefined;
       apply('', section);
-      return;
+    } else {
+      const scopes: { key: string; scopeUri?: string }[] = [{ key: '' }, ...this.folders.map((f) => ({ key: f.path, scopeUri: f.uri }))];
+      const values = (await this.connection.workspace.getConfiguration(scopes.map((s) => ({ section: 'noisewise', scopeUri: s.scopeUri })))) as unknown[];
+      scopes.forEach((scope, i) => apply(scope.key, values[i]));
     }
-    const scopes: { key: string; scopeUri?: string }[] = [{ key: '' }, ...this.folders.map((f) => ({ key: f.path, scopeUri: f.uri }))];
-    const values = (await this.connection.workspace.getConfiguration(scopes.map((s) => ({ section: 'noisewise', scopeUri: s.scopeUri })))) as unknown[];
-    scopes.forEach((scope, i) => apply(scope.key, values[i]));
+    this.editorSettings.clear();
+    for (const [key, settings] of next) this.editorSettings.set(key, settings);
+    // Results computed with the old settings are stale from here on.
+    this.results.clear();
   }
 
   private isOpen(absPath: string): boolean {

@@ -51,6 +51,8 @@ export class Workspace {
   private readonly moduleOwner = new WeakMap<SyntaxFile, FileAnalysis>();
   /** Syntax trees handed in by `setFile({ parsed })`, reused by `analyse` while they match the file's text. */
   private readonly preParsed = new Map<string, SyntaxFile | (() => SyntaxFile)>();
+  /** Who imports whom (absolute paths), derived from every file's import list; reset when files change. */
+  private importers: Map<string, string[]> | null = null;
   /** Memo tables that rules and queries fill; cleared whenever any file changes. */
   readonly memo = new Map<string, Map<unknown, unknown>>();
   private versionCounter = 0;
@@ -87,6 +89,7 @@ export class Workspace {
     this.registerModuleName(file);
     this.analyses.delete(absPath);
     this.memo.clear();
+    this.importers = null;
     return true;
   }
 
@@ -98,7 +101,7 @@ export class Workspace {
     const file = this.files.get(path.resolve(absPathIn));
     if (!file || file.importedModules) return;
     file.importedModules = [...modules];
-    this.memo.delete('workspace:importers');
+    this.importers = null;
   }
 
   /** Removes a file; returns false when it was not known. */
@@ -111,6 +114,7 @@ export class Workspace {
     this.analyses.delete(absPath);
     this.preParsed.delete(absPath);
     this.memo.clear();
+    this.importers = null;
     return true;
   }
 
@@ -150,7 +154,10 @@ export class Workspace {
    */
   trimCache(): number {
     let evicted = 0;
-    while (this.analyses.size > this.cacheLimit) {
+    if (this.analyses.size <= this.cacheLimit) return 0;
+    // Trim well below the limit, so that memo tables (cleared on every trim) are rebuilt rarely on large workspaces.
+    const target = Math.max(1, Math.floor(this.cacheLimit * 0.75));
+    while (this.analyses.size > target) {
       const oldest = this.analyses.keys().next().value as string;
       this.analyses.delete(oldest);
       evicted++;
@@ -234,9 +241,8 @@ export class Workspace {
   }
 
   private importersIndex(): Map<string, string[]> {
-    const key = 'workspace:importers';
-    const cached = this.memo.get(key)?.get(key) as Map<string, string[]> | undefined;
-    if (cached) return cached;
+    // Built from module names and import lists only (no syntax), so it survives cache trims; file changes reset it.
+    if (this.importers) return this.importers;
     const index = new Map<string, string[]>();
     for (const file of this.files.values()) {
       for (const target of this.importsOf(file.absPath)) {
@@ -245,7 +251,7 @@ export class Workspace {
         index.set(target, list);
       }
     }
-    this.memoTable(key).set(key, index);
+    this.importers = index;
     return index;
   }
 
