@@ -182,7 +182,7 @@ describe('SARIF format', () => {
   nb.findings[0]!.related = [{ start: nb.text.indexOf('sigma'), end: nb.text.indexOf('sigma') + 5, message: 'declared here' }];
   const outcome = outcomeOf([nb, py], {
     notes: [{ path: 'weird name/x.py', level: 'warning', kind: 'skipped', message: 'binary file' }],
-    cwd: '/work/lab',
+    cwd: '/srv/gauge-lab',
   });
   const log = sarifLog(outcome) as Json;
   const run = log.runs[0] as Json;
@@ -193,7 +193,7 @@ describe('SARIF format', () => {
     expect(run.tool.driver.name).toBe('noisewise');
     expect(run.tool.driver.version).toBe('0.1.0');
     expect(run.columnKind).toBe('unicodeCodePoints');
-    expect(run.originalUriBaseIds).toEqual({ '%SRCROOT%': { uri: 'file:///work/lab/' } });
+    expect(run.originalUriBaseIds).toEqual({ '%SRCROOT%': { uri: 'file:///srv/gauge-lab/' } });
   });
 
   it('lists the rules with descriptions, help and default levels', () => {

@@ -99,7 +99,7 @@ function handMadeLog(): unknown {
         { path: 'data/blob.py', level: 'warning', kind: 'skipped', message: 'binary file (it contains NUL bytes)' },
         { path: 'old/latin.py', level: 'info', kind: 'syntax', message: 'one syntax error' },
       ],
-      cwd: '/work/river lab',
+      cwd: '/srv/river lab',
     }),
   );
 }

@@ -55,7 +55,7 @@ export function findingIn(text: string, filePath: string, spec: FindingSpec): Fi
 export function pythonReport(filePath: string, text: string, specs: FindingSpec[] = []): FileReport {
   return {
     path: filePath,
-    absPath: `/work/lab/${filePath}`,
+    absPath: `/srv/gauge-lab/${filePath}`,
     kind: 'python',
     text,
     notebook: null,
@@ -69,7 +69,7 @@ export function notebookReport(filePath: string, raw: string, specs: FindingSpec
   const model = readNotebook(raw);
   return {
     path: filePath,
-    absPath: `/work/lab/${filePath}`,
+    absPath: `/srv/gauge-lab/${filePath}`,
     kind: 'notebook',
     text: model.text,
     notebook: model,
@@ -108,7 +108,7 @@ export function outcomeOf(reports: FileReport[], extra: Partial<CheckOutcome> = 
     filesFixed: 0,
     fixMode: 'none',
     version: '0.1.0',
-    cwd: '/work/lab',
+    cwd: '/srv/gauge-lab',
     sources,
     complete: true,
     ...extra,
