@@ -578,13 +578,15 @@ function summarise(results) {
     const bound = atLeast && perSize[smallest].checkMsPerKLoc ? atLeast / perSize[smallest].checkMsPerKLoc : null;
     if (bound && bound > 1) scaling[`checkMsPerKLoc:${largest}/${smallest}:atLeast`] = r3(bound);
   }
-  const head = perSize['100k'] ?? perSize[names[Math.min(1, names.length - 1)]];
+  // The targets are set at 100k; without that size the figures of the next size are judged, and the label says so.
+  const headName = perSize['100k'] ? '100k' : names[Math.min(1, names.length - 1)];
+  const head = perSize[headName];
   const lsp = results.lsp?.ok ? results.lsp.result : null;
   const targets = [
-    { target: 'check ≤ 1.5 × parse-only on 100k, single-threaded (wall)', value: head?.checkOverParseOnly ?? null, limit: 1.5, better: 'lower' },
+    { target: `check ≤ 1.5 × parse-only on ${headName}, single-threaded (wall)`, value: head?.checkOverParseOnly ?? null, limit: 1.5, better: 'lower' },
     { target: 'parallel speed-up on this machine close to its core count', value: head?.parallelSpeedup ?? null, limit: results.machine.cores, better: 'higher' },
-    { target: '≥ 15 × faster than pyflakes on 100k (per line)', value: head?.pyflakesOverCheck ?? null, limit: 15, better: 'higher' },
-    { target: 'peak RSS of the check ≤ 200 MB on 100k', value: head?.checkPeakRssMb ?? null, limit: 200, better: 'lower' },
+    { target: `≥ 15 × faster than pyflakes on ${headName} (per line)`, value: head?.pyflakesOverCheck ?? null, limit: 15, better: 'higher' },
+    { target: `peak RSS of the check ≤ 200 MB on ${headName}`, value: head?.checkPeakRssMb ?? null, limit: 200, better: 'lower' },
     { target: 'check time per kLOC at 1M within 1.2 × of 10k', value: perSize['1M'] && perSize['10k'] ? scaling['checkMsPerKLoc:1M/10k'] ?? null : null, limit: 1.2, better: 'lower' },
     { target: 'language server: edit → diagnostics p95 ≤ 50 ms on a 3,000-line file (pushed)', value: lsp?.editToDiagnostics?.push?.p95Ms ?? null, limit: 50, better: 'lower' },
     { target: 'language server: cold start → first diagnostics ≤ 500 ms (one file)', value: lsp?.coldStart?.firstDiagnosticsMs ?? null, limit: 500, better: 'lower' },

@@ -116,7 +116,7 @@ describe('noisewise check on trees of mutated fixtures', () => {
         files += written.size;
         fs.rmSync(batch, { recursive: true, force: true });
       }),
-      { numRuns: runs(2, 12), seed: seed(), endOnFailure: true },
+      { numRuns: runs(2, 24), seed: seed(), endOnFailure: true },
     );
     recordCount('cli: mutated files checked (3 runs each)', files);
     recordCount('cli: batches', batches);

@@ -47,7 +47,7 @@ describe('the engine on mutated fixtures', () => {
         expect(fingerprint(second), label).toBe(fingerprint(first));
         tried++;
       }),
-      { numRuns: runs(250, 4000), seed: seed(), endOnFailure: true },
+      { numRuns: runs(250, 8000), seed: seed(), endOnFailure: true },
     );
     recordCount('engine: mutated inputs checked twice', tried);
   }, 600_000);

@@ -23,7 +23,7 @@ function fixSources(): { name: string; text: string }[] {
   return out;
 }
 
-const FILE_COUNT = 320;
+const FILE_COUNT = 240;
 let scratch: string;
 /** The tree before any fix: relative path → bytes and mode. */
 const original = new Map<string, { bytes: Buffer; mode: number }>();
@@ -58,6 +58,27 @@ function tempFiles(root: string): string[] {
     }
   }
   return out;
+}
+
+/** Calls `then` once, as soon as a temporary file of a `--fix` run appears in a folder of the tree; returns a stop. */
+function onFirstTempFile(root: string, then: () => void): () => void {
+  let fired = false;
+  const watchers: fs.FSWatcher[] = [];
+  const stop = (): void => {
+    for (const w of watchers.splice(0)) w.close();
+  };
+  const folders = [...new Set([...original.keys()].map((rel) => path.dirname(rel)))];
+  for (const folder of folders) {
+    watchers.push(
+      fs.watch(path.join(root, folder), (_event, name) => {
+        if (fired || name === null || !/\.noisewise-\d+-\w+\.tmp$/.test(String(name))) return;
+        fired = true;
+        then();
+        stop();
+      }),
+    );
+  }
+  return stop;
 }
 
 beforeAll(() => {
@@ -98,22 +119,37 @@ describe('--fix on a tree of a few hundred fixable files', () => {
   });
 
   it('leaves every file wholly old or wholly new when the process is killed at random moments', async () => {
-    const kills = runs(8, 25);
+    // Half the kills come at a random moment of the whole run, steered towards the writing phase; the other half a
+    // random few milliseconds after the first temporary file appears, so that some kill lands among the writes even
+    // on a machine that writes the whole tree in a few milliseconds.
+    const kills = runs(12, 20);
     let killed = 0;
     let lo = 0;
     let hi = fullRunMs * 1.3;
+    let afterFirstWriteMs = 8;
     let partial = 0;
     const report: string[] = [];
+    const changedTotal = [...original.keys()].filter((rel) => !fixed.get(rel)!.equals(original.get(rel)!.bytes)).length;
     for (let k = 0; k < kills && (STRESS || partial < 2); k++) {
       killed++;
       const root = path.join(scratch, `kill-${k}`);
       writeTree(root);
-      const delay = lo + Math.random() * (hi - lo);
+      const watched = k % 2 === 1;
+      const delay = watched ? Math.random() * afterFirstWriteMs : lo + Math.random() * (hi - lo);
       const child = spawn(process.execPath, [BIN, 'check', '.', '--fix', '--format', 'json'], { cwd: root, stdio: 'ignore' });
       const exited = new Promise<void>((resolve) => child.on('exit', () => resolve()));
-      await new Promise((resolve) => setTimeout(resolve, delay));
-      child.kill('SIGKILL');
-      await exited;
+      if (watched) {
+        const stop = onFirstTempFile(root, () => {
+          if (delay < 1) child.kill('SIGKILL');
+          else setTimeout(() => child.kill('SIGKILL'), delay);
+        });
+        await exited;
+        stop();
+      } else {
+        await new Promise((resolve) => setTimeout(resolve, delay));
+        child.kill('SIGKILL');
+        await exited;
+      }
       let news = 0;
       for (const [rel, { bytes, mode }] of original) {
         const now = fs.readFileSync(path.join(root, rel));
@@ -123,13 +159,13 @@ describe('--fix on a tree of a few hundred fixable files', () => {
         expect(fs.statSync(path.join(root, rel)).mode & 0o777, rel).toBe(mode);
         if (isNew && !isOld) news++;
       }
-      const changedTotal = [...original.keys()].filter((rel) => !fixed.get(rel)!.equals(original.get(rel)!.bytes)).length;
-      report.push(`${Math.round(delay)} ms: ${news}/${changedTotal} written`);
+      report.push(`${watched ? 'first write + ' : ''}${Math.round(delay)} ms: ${news}/${changedTotal} written`);
+      if (news > 0 && news < changedTotal) partial++;
       // Steer the next kill into the writing phase: after an all-old kill wait longer, after an all-new one less.
-      if (news === 0) lo = delay;
-      else if (news === changedTotal) hi = delay;
-      else partial++;
-      if (news > 0 && news < changedTotal && (STRESS || partial <= 1)) {
+      else if (watched) afterFirstWriteMs = news === changedTotal ? afterFirstWriteMs / 2 : afterFirstWriteMs * 2;
+      else if (news === 0) lo = delay;
+      else hi = delay;
+      if (news > 0 && news < changedTotal && partial <= (STRESS ? 3 : 1)) {
         // A complete run after a kill in the writing phase finishes the job and leaves no temporary file of its own
         // (the killed run's may stay: nothing can remove them).
         const leftover = new Set(tempFiles(root));
@@ -146,6 +182,40 @@ describe('--fix on a tree of a few hundred fixable files', () => {
     // The steering finds the writing phase; a run of kills that never hit it would test nothing.
     expect(partial, report.join('; ')).toBeGreaterThan(0);
   }, 900_000);
+});
+
+describe('--fix and files edited while it runs', () => {
+  it('never overwrites a file that changed on disk after it was read, and says so', async () => {
+    const root = path.join(scratch, 'edited');
+    writeTree(root);
+    const child = spawn(process.execPath, [BIN, 'check', '.', '--fix', '--format', 'json'], { cwd: root, stdio: ['ignore', 'pipe', 'pipe'] });
+    let stdout = '';
+    child.stdout!.on('data', (chunk: Buffer) => (stdout += chunk.toString()));
+    const exited = new Promise<void>((resolve) => child.on('exit', () => resolve()));
+    const suffix = (rel: string): string => (rel.endsWith('.py') ? '# saved by the user\n' : ' ');
+    // Every file has been read once the first fixed file is being written (writes come last, in path order). The
+    // process is paused there and the user saves the ten files it would write last.
+    let edited: string[] = [];
+    const stop = onFirstTempFile(root, () => {
+      child.kill('SIGSTOP');
+      edited = [...original.keys()]
+        .filter((rel) => !fixed.get(rel)!.equals(original.get(rel)!.bytes))
+        .sort((a, b) => (a < b ? -1 : a > b ? 1 : 0))
+        .slice(-10);
+      for (const rel of edited) fs.appendFileSync(path.join(root, rel), suffix(rel));
+      child.kill('SIGCONT');
+    });
+    await exited;
+    stop();
+    expect(edited).toHaveLength(10);
+    for (const rel of edited) {
+      const now = fs.readFileSync(path.join(root, rel));
+      expect(now.equals(Buffer.concat([original.get(rel)!.bytes, Buffer.from(suffix(rel))])), `${rel} was overwritten`).toBe(true);
+    }
+    const notes = (JSON.parse(stdout) as { notes: { path: string; message: string }[] }).notes.filter((n) => /changed on disk while it was being checked/.test(n.message)).map((n) => n.path);
+    expect(notes.sort()).toEqual([...edited].sort());
+    fs.rmSync(root, { recursive: true, force: true });
+  });
 });
 
 describe('--fix and the files it writes', () => {

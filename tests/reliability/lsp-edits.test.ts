@@ -141,7 +141,7 @@ describe('random edit sequences over the protocol', () => {
         expect(session.child.exitCode).toBeNull();
         sequences++;
       }),
-      { numRuns: runs(30, 500), seed: seed(), endOnFailure: true },
+      { numRuns: runs(30, 1200), seed: seed(), endOnFailure: true },
     );
     // Nothing but protocol frames went to stdout, and nothing was logged as a failure.
     expect(session.stdoutFrames().length).toBeGreaterThan(0);
@@ -231,7 +231,7 @@ describe('random edit sequences over the protocol', () => {
         expect(session.child.exitCode).toBeNull();
         sequences++;
       }),
-      { numRuns: runs(10, 150), seed: seed(), endOnFailure: true },
+      { numRuns: runs(10, 300), seed: seed(), endOnFailure: true },
     );
     recordCount('lsp: notebook edit sequences', sequences);
   }, 900_000);

@@ -83,6 +83,7 @@ export function checkFile(workspace: Workspace, absPath: string, settings: Engin
     return failedReport(entry, `noisewise could not analyse this file: ${describe(error)}`);
   }
   if (!analysis) throw new Error(`noisewise: ${absPath} is not part of the workspace`);
+  if (analysis.failure) return failedReport(entry, analysis.failure);
   const file = analysis.file;
   const notes: FileNote[] = [];
   const base: Omit<FileReport, 'findings' | 'notes'> = { path: file.path, absPath: file.absPath, kind: file.kind, text: analysis.text, notebook: analysis.notebook };

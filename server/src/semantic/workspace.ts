@@ -35,6 +35,8 @@ export interface FileAnalysis {
   module: ModuleAnalysis;
   /** Why the file could not be analysed, when it could not (then syntax/module describe an empty module). */
   unreadable: string | null;
+  /** Set when analysing the file failed inside noisewise (an internal error, not a problem of the file). */
+  failure?: string;
 }
 
 /** Provides the Python parser (shared; initialised by the caller). */
@@ -140,7 +142,16 @@ export class Workspace {
     }
     const file = this.files.get(absPath);
     if (!file) return null;
-    const analysis = this.analyse(file);
+    let analysis: FileAnalysis;
+    try {
+      analysis = this.analyse(file);
+    } catch (error) {
+      // A bug in the syntax copy or the model must not reach the other files that look into this one: they see an
+      // empty module, and checking this file reports the failure (see `failure`).
+      const message = `noisewise could not analyse this file: ${error instanceof Error ? error.message : String(error)}`;
+      const syntax = PythonDocument.parse(this.parser(), '').syntax;
+      analysis = { file, text: '', notebook: null, syntax, module: new ModuleAnalysis(syntax, file.moduleName, file.isPackage), unreadable: message, failure: message };
+    }
     this.analyses.set(absPath, analysis);
     this.moduleOwner.set(analysis.syntax, analysis);
     return analysis;
