@@ -1,6 +1,6 @@
 // unbounded-noise-rate, the data flow: from a noise std (or variance) back to the tensor that makes it, recording the
 // monotone steps on the way, so the rule can tell a trainable α or log α from a fixed or derived one and compute its bound.
-import { type ClassInfo, type FunctionInfo, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
+import { type ClassInfo, type FileAnalysis, type FunctionInfo, type Semantics, type SyntaxNode, defineFileSummary, summaryOf, unwrapParens } from '../../server/src/engine/api';
 
 /** A monotone step from the trainable tensor outwards to the noise std (or variance). */
 export type Op =
@@ -301,15 +301,13 @@ interface InPlaceClamp {
  * `self.log_alpha.data.clamp_(max=0.0)`, `p.data.clamp_(max=0)` under `if 'log_alpha' in name:`, and
  * `x.data = torch.clamp(x.data, max=…)`. They bound the trainable tensor itself.
  */
-function inPlaceClamps(sem: Semantics): InPlaceClamp[] {
+function clampsIn(sem: Semantics, analysis: FileAnalysis): InPlaceClamp[] {
   const memo = sem.workspace.memoTable<string, InPlaceClamp[]>('unbounded-noise-rate:in-place');
-  const cached = memo.get('all');
+  const cached = memo.get(analysis.file.absPath);
   if (cached) return cached;
   const out: InPlaceClamp[] = [];
-  memo.set('all', out);
-  for (const file of sem.workspace.allFiles()) {
-    const analysis = sem.workspace.analysis(file.absPath);
-    if (!analysis) continue;
+  memo.set(analysis.file.absPath, out);
+  {
     for (const n of analysis.syntax.nodes) {
       let target: SyntaxNode | null = null;
       let maxNode: SyntaxNode | null = null;
@@ -351,6 +349,48 @@ function inPlaceClamps(sem: Semantics): InPlaceClamp[] {
     }
   }
   return out;
+}
+
+/** What a file's in-place clamps bound, as plain data that outlives the file's syntax tree (see `fileSummary`). */
+interface ClampSummary {
+  start: number;
+  attribute: string | null;
+  nameTests: string[];
+}
+
+/** Each file's in-place clamps, by the names they bound. */
+export const IN_PLACE_CLAMPS = defineFileSummary<ClampSummary[]>({
+  name: 'unbounded-noise-rate:in-place-clamps',
+  compute: (sem, analysis) => clampsIn(sem, analysis).map((c) => ({ start: c.node.start, attribute: c.attribute, nameTests: c.nameTests })),
+});
+
+/**
+ * In-place clamps anywhere in the workspace that may bound a trainable tensor of this name. Each file is scanned
+ * once (its summary is kept across cache trims); only files with a clamp of a matching name are analysed again here.
+ */
+function inPlaceClampsFor(sem: Semantics, name: string): InPlaceClamp[] {
+  // The files whose summary has a clamp at all, listed once per memo lifetime.
+  const memo = sem.workspace.memoTable<string, { absPath: string; clamps: ClampSummary[] }[]>('unbounded-noise-rate:clamping-files');
+  let clamping = memo.get('all');
+  if (!clamping) {
+    clamping = [];
+    for (const file of sem.workspace.allFiles()) {
+      const clamps = summaryOf(sem, IN_PLACE_CLAMPS, file.absPath);
+      if (clamps && clamps.length > 0) clamping.push({ absPath: file.absPath, clamps });
+    }
+    memo.set('all', clamping);
+  }
+  const out: InPlaceClamp[] = [];
+  for (const { absPath, clamps } of clamping) {
+    if (!clamps.some((c) => clampMatches(c, name))) continue;
+    const analysis = sem.workspace.analysis(absPath);
+    if (analysis) out.push(...clampsIn(sem, analysis).filter((c) => clampMatches(c, name)));
+  }
+  return out;
+}
+
+function clampMatches(c: { attribute: string | null; nameTests: string[] }, name: string): boolean {
+  return c.attribute !== null ? c.attribute === name : c.nameTests.some((t) => t.length > 0 && name.includes(t));
 }
 
 /**
@@ -401,9 +441,8 @@ export function withInPlaceBound(sem: Semantics, leaf: Leaf): Leaf {
   const owner = leaf.trainable.attribute?.cls ?? null;
   // A clamp on instances of known classes bounds only an attribute of those classes (or of their bases and subclasses).
   const related = (classes: ClassInfo[] | null) => classes === null || owner === null || classes.some((c) => sem.ancestry(c).some((a) => sameClass(a, owner)) || sem.ancestry(owner).some((a) => sameClass(a, c)));
-  for (const c of inPlaceClamps(sem)) {
-    const matches = (c.attribute !== null ? c.attribute === name : c.nameTests.some((t) => t.length > 0 && name.includes(t))) && related(c.classes);
-    if (matches && (!best || c.max < best.max)) best = c;
+  for (const c of inPlaceClampsFor(sem, name)) {
+    if (related(c.classes) && (!best || c.max < best.max)) best = c;
   }
   if (!best) return leaf;
   return { ...leaf, ops: [{ kind: 'clamp', max: best.max, maxNode: best.maxNode, call: best.node }, ...leaf.ops] };

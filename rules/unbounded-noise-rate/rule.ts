@@ -2,7 +2,7 @@
 // nothing bounding it at α ≤ 1, and the noise's std written as α itself where α is a variance.
 import { type ClassInfo, defineRule, type Figure, formatNumber, type FunctionInfo, type RuleContext, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
 import { dropRateOfAlpha, signFlipProbability } from './normal-cdf';
-import { applyOp, descendants, EXP, initialAlpha, type Leaf, LOG, type NoiseSite, type Op, PASS_THROUGH_METHODS, type Quantity, SQRT, upperBoundOfAlpha, walk, withInPlaceBound } from './rate-walk';
+import { applyOp, descendants, EXP, initialAlpha, IN_PLACE_CLAMPS, type Leaf, LOG, type NoiseSite, type Op, PASS_THROUGH_METHODS, type Quantity, SQRT, upperBoundOfAlpha, walk, withInPlaceBound } from './rate-walk';
 import { fixesFor } from './fixes';
 
 /** Calls that draw standard-normal noise ε. */
@@ -39,6 +39,7 @@ export const rule = defineRule({
     },
     settings: [],
   },
+  summaries: [IN_PLACE_CLAMPS],
   create(context) {
     const sem = context.sem;
     const reported = new Set<SyntaxNode>();

@@ -1,9 +1,12 @@
-// Checks a workspace with worker threads: each worker holds every file's text, analyses its own share of the files,
-// tells the others which modules those files import (so nobody parses a file only to learn its imports), then runs
-// the rules on its share; cross-file questions parse other files lazily inside the worker that asks.
+// Checks a workspace with worker threads: each worker holds every file's text (and so the import graph, which is read
+// from the texts without parsing), computes the per-file summaries of its own share and hands them to the others
+// (so no worker analyses every file just to read its summary), then runs the rules on its share; cross-file
+// questions parse other files lazily inside the worker that asks.
 import * as os from 'node:os';
 import { isMainThread, parentPort, Worker, workerData } from 'node:worker_threads';
-import { checkFile, checkSources, getParser } from '../engine/check';
+import { DEFAULT_FILE_BUDGET_MS } from '../engine/budget';
+import { checkFile, checkSources, getParser, summaryKinds } from '../engine/check';
+import { prepareSummaries } from '../engine/summaries';
 import type { CheckInput, EngineSettings, FileReport, RuleSelection } from '../engine/types';
 import { readNotebook } from '../parse/notebook';
 import { Workspace } from '../semantic/workspace';
@@ -35,11 +38,12 @@ interface InitMessage {
   rules: RuleSelection | undefined;
   budgetMs: number | undefined;
 }
-interface ImportsMessage {
-  type: 'imports';
-  imports: [string, string[]][];
+type SummaryEntries = [string, [string, unknown][]][];
+interface SummariesMessage {
+  type: 'summaries';
+  summaries: SummaryEntries;
 }
-type WorkerReply = { type: 'imports'; imports: [string, string[]][] } | { type: 'reports'; reports: [number, FileReport][] } | { type: 'error'; message: string };
+type WorkerReply = { type: 'summaries'; summaries: SummaryEntries } | { type: 'reports'; reports: [number, FileReport][] } | { type: 'error'; message: string };
 
 /** The number of workers a check would use. */
 export function effectiveJobs(jobs: number | null | undefined, inputs: readonly CheckInput[]): number {
@@ -82,15 +86,15 @@ export async function checkSourcesInParallel(inputs: CheckInput[], options: Para
       const message: InitMessage = { type: 'init', inputs, settings, share, workspaceRoot: options.workspaceRoot, rules: options.rules, budgetMs: options.budgetMs };
       workers[w]!.postMessage(message);
     });
-    // Phase 1: every worker analyses its share and reports the modules those files import.
-    const imports: [string, string[]][] = [];
+    // Phase 1: every worker computes the summaries of its share; each gets everybody's.
+    const summaries: SummaryEntries = [];
     for (const reply of replies) {
       const message = await reply.next();
-      if (message.type !== 'imports') throw new Error(message.type === 'error' ? message.message : 'a check worker answered out of order');
-      imports.push(...message.imports);
+      if (message.type !== 'summaries') throw new Error(message.type === 'error' ? message.message : 'a check worker answered out of order');
+      summaries.push(...message.summaries);
     }
-    const importsMessage: ImportsMessage = { type: 'imports', imports };
-    for (const worker of workers) worker.postMessage(importsMessage);
+    const summariesMessage: SummariesMessage = { type: 'summaries', summaries };
+    for (const worker of workers) worker.postMessage(summariesMessage);
     // Phase 2: every worker checks its share.
     for (const reply of replies) {
       const message = await reply.next();
@@ -150,12 +154,12 @@ export function isCheckWorker(): boolean {
   return !isMainThread && (workerData as { tag?: string } | null)?.tag === WORKER_TAG;
 }
 
-/** The body of a check worker: analyse the share, exchange imports, check the share, reply with the reports. */
+/** The body of a check worker: index every file, summarise the share, take the others' summaries, check the share. */
 export function runCheckWorker(): void {
   const port = parentPort!;
   let workspace: Workspace | null = null;
   let init: InitMessage | null = null;
-  port.on('message', (message: InitMessage | ImportsMessage) => {
+  port.on('message', (message: InitMessage | SummariesMessage) => {
     void (async () => {
       try {
         if (message.type === 'init') {
@@ -163,22 +167,19 @@ export function runCheckWorker(): void {
           const parser = await getParser();
           workspace = new Workspace(message.workspaceRoot, () => parser);
           for (const input of message.inputs) workspace.setFile(input);
-          const imports: [string, string[]][] = [];
-          for (const index of message.share) {
-            const absPath = message.inputs[index]!.absPath;
-            workspace.analysis(absPath);
-            imports.push([absPath, workspace.file(absPath)?.importedModules ?? []]);
-          }
-          port.postMessage({ type: 'imports', imports } satisfies WorkerReply);
+          const share = message.share.map((index) => message.inputs[index]!.absPath);
+          prepareSummaries(workspace, share, summaryKinds(message.rules), message.budgetMs ?? DEFAULT_FILE_BUDGET_MS);
+          port.postMessage({ type: 'summaries', summaries: workspace.exportSummaries(share) } satisfies WorkerReply);
           return;
         }
-        if (!workspace || !init) throw new Error('a check worker got imports before its files');
-        for (const [absPath, modules] of message.imports) workspace.setImportedModules(absPath, modules);
-        const current = init as InitMessage;
+        if (!workspace || !init) throw new Error('a check worker got summaries before its files');
+        workspace.importSummaries(message.summaries);
+        const current: InitMessage = init;
+        const ws: Workspace = workspace;
         // A notebook's model holds its whole parsed JSON, which may nest deeper than a message can be cloned (deep
         // outputs); the main thread reads it again from the text it already has.
         const reports: [number, FileReport][] = current.share.map((index) => {
-          const report = checkFile(workspace!, current.inputs[index]!.absPath, current.settings[index]!, current.rules, { budgetMs: current.budgetMs });
+          const report = checkFile(ws, current.inputs[index]!.absPath, current.settings[index]!, current.rules, { budgetMs: current.budgetMs });
           return [index, report.kind === 'notebook' ? { ...report, notebook: null } : report];
         });
         port.postMessage({ type: 'reports', reports } satisfies WorkerReply);

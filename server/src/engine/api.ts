@@ -4,11 +4,15 @@ import type { SyntaxNode } from '../parse/syntax';
 import type { Semantics } from '../semantic/queries';
 import type { Figure, Fix, FixSafety, RelatedLocation, Severity, TextEdit } from './finding';
 import type { RuleMeta } from './rule-meta';
+import type { FileSummaryKind } from './summaries';
 
 export type { SyntaxNode } from '../parse/syntax';
 export type { Binding, ClassInfo, FunctionInfo, Scope } from '../semantic/module';
 export { unwrapParens } from '../semantic/module';
 export type { Callee, Origin, ResolvedSymbol, Semantics, ValueType } from '../semantic/queries';
+export type { FileAnalysis } from '../semantic/workspace';
+export type { FileSummaryKind } from './summaries';
+export { defineFileSummary, summaryOf } from './summaries';
 export { MODULE_BASES } from '../semantic/queries';
 export type { ConstantValue } from '../semantic/values';
 export { formatNumber } from '../semantic/values';
@@ -60,10 +64,12 @@ export interface RuleContext {
 /** Node listeners keyed by tree-sitter node type; `file:end` runs after the walk. */
 export type RuleListeners = { [nodeType: string]: ((node: SyntaxNode) => void) | undefined } & { 'file:end'?: () => void };
 
-/** A rule: its metadata and a factory of listeners for one file. */
+/** A rule: its metadata, a factory of listeners for one file, and the per-file summaries it reads. */
 export interface Rule {
   meta: RuleMeta;
   create(context: RuleContext): RuleListeners;
+  /** Summaries the rule reads of other files (see engine/summaries.ts); a run computes them before its checks. */
+  summaries?: FileSummaryKind<unknown>[];
 }
 
 /** Declares a rule (identity function that gives the literal its type). */

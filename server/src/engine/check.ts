@@ -11,6 +11,7 @@ import type { RuleContext, RuleListeners } from './api';
 import { BudgetExceededError, DEFAULT_FILE_BUDGET_MS, Deadline, formatSeconds } from './budget';
 import { type Finding, type Severity, SEVERITY_RANK, type TextEdit } from './finding';
 import { collectSuppressions, isSuppressed } from './suppress';
+import { type FileSummaryKind, prepareSummaries } from './summaries';
 import type { CheckInput, EngineSettings, FileNote, FileReport, RuleSelection } from './types';
 
 /** Names that mean "number of training examples" before `dataset-size-names` adds more (RULES.md). */
@@ -47,7 +48,20 @@ export async function checkSources(inputs: CheckInput[], options: CheckOptions):
   const parser = await getParser();
   const workspace = new Workspace(path.resolve(options.workspaceRoot), () => parser);
   for (const input of inputs) workspace.setFile(input);
+  prepareSummaries(workspace, inputs.map((input) => path.resolve(input.absPath)), summaryKinds(options.rules), options.budgetMs ?? DEFAULT_FILE_BUDGET_MS);
   return inputs.map((input) => checkFile(workspace, path.resolve(input.absPath), options.settingsFor(input.absPath), options.rules, { budgetMs: options.budgetMs }));
+}
+
+/** The per-file summaries the selected rules read (see engine/summaries.ts). */
+export function summaryKinds(selection?: RuleSelection): FileSummaryKind<unknown>[] {
+  const out: FileSummaryKind<unknown>[] = [];
+  for (const rule of allRules) {
+    const id = rule.meta.id;
+    if (selection?.only && selection.only.length > 0 && !selection.only.includes(id)) continue;
+    if (selection?.skip?.includes(id)) continue;
+    out.push(...(rule.summaries ?? []));
+  }
+  return out;
 }
 
 /** The rules that run for a selection and settings, with their effective severities. */

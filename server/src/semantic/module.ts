@@ -1,5 +1,6 @@
 // Per-file semantic model: scopes, bindings (def-use), imports resolved to qualified names, classes and functions.
 // Built in one pass over the preorder node array; name lookups are answered lazily and cached.
+import { relativeModuleName } from './import-scan';
 import type { SyntaxFile, SyntaxNode } from '../parse/syntax';
 
 /** How a name got its value. */
@@ -229,10 +230,7 @@ export class ModuleAnalysis {
 
   /** Resolves a relative import (`..pkg`) against this module's package. */
   resolveRelative(dots: number, rest: string): string {
-    const parts = this.name.split('.');
-    const packageParts = this.isPackage ? parts : parts.slice(0, -1);
-    const base = packageParts.slice(0, Math.max(0, packageParts.length - (dots - 1)));
-    return [...base, ...(rest ? [rest] : [])].filter(Boolean).join('.');
+    return relativeModuleName(this.name, this.isPackage, dots, rest);
   }
 
   private build(): void {

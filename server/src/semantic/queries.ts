@@ -84,6 +84,11 @@ export class Semantics {
     private readonly budget: QueryBudget | null = null,
   ) {}
 
+  /** The same queries from the point of view of another file of the workspace (sharing this one's budget). */
+  forFile(analysis: FileAnalysis): Semantics {
+    return analysis === this.analysis ? this : new Semantics(this.workspace, analysis, this.budget);
+  }
+
   /**
    * Throws (an error the engine catches) once the file's analysis budget is spent. Cheap: the clock is read on every
    * 64th call. The queries call it themselves; a rule calls it in loops that ask no query.

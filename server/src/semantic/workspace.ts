@@ -6,6 +6,7 @@ import type { Parser } from 'web-tree-sitter';
 import { PythonDocument } from '../parse/document';
 import { type NotebookModel, NotebookError, readNotebook } from '../parse/notebook';
 import type { SyntaxFile, SyntaxNode } from '../parse/syntax';
+import { scanImports } from './import-scan';
 import { ModuleAnalysis } from './module';
 
 /** One file of the workspace as the index knows it. */
@@ -21,7 +22,10 @@ export interface WorkspaceFile {
   isPackage: boolean;
   /** Content version; bumped on every update. */
   version: number;
-  /** Module names this file imports, recorded at its first analysis (kept when the analysis is evicted). */
+  /**
+   * Module names this file imports, read from its text when it is added (`scanImports`), so that the import graph
+   * never needs an analysis; null only for a notebook that cannot be read (it imports nothing).
+   */
   importedModules: string[] | null;
 }
 
@@ -49,6 +53,8 @@ const DEFAULT_CACHE_LIMIT = 400;
 export class Workspace {
   private readonly files = new Map<string, WorkspaceFile>();
   private readonly byModuleName = new Map<string, string[]>();
+  /** `moduleFileByName` answers (importer + name → file); cleared when a file is added or removed. */
+  private readonly moduleLookups = new Map<string, string | null>();
   private readonly analyses = new Map<string, FileAnalysis>();
   private readonly moduleOwner = new WeakMap<SyntaxFile, FileAnalysis>();
   /** Syntax trees handed in by `setFile({ parsed })`, reused by `analyse` while they match the file's text. */
@@ -57,6 +63,13 @@ export class Workspace {
   private importers: Map<string, string[]> | null = null;
   /** Memo tables that rules and queries fill; cleared whenever any file changes. */
   readonly memo = new Map<string, Map<unknown, unknown>>();
+  /**
+   * Per-file summaries (absolute path → summary name → value): plain data derived from one file and what it
+   * imports. Unlike memo tables they survive cache trims, so a workspace-wide question (where is any tensor
+   * clamped in place?) costs one pass over each file, not one per checked file; a change to a file drops the
+   * summaries of the files that depend on it.
+   */
+  private readonly summaries = new Map<string, Map<string, unknown>>();
   private versionCounter = 0;
 
   constructor(
@@ -83,27 +96,21 @@ export class Workspace {
     }
     if (input.parsed) this.preParsed.set(absPath, input.parsed);
     else this.preParsed.delete(absPath);
+    const stale = this.summaryDependents(absPath);
     if (existing) this.unregisterModuleName(existing);
+    if (!existing || existing.path !== input.path) this.moduleLookups.clear();
     const kind = absPath.endsWith('.ipynb') ? 'notebook' : 'python';
     const { moduleName, isPackage } = moduleNameFor(this.root, absPath);
-    const file: WorkspaceFile = { path: input.path, absPath, kind, raw: input.text, moduleName, isPackage, version: ++this.versionCounter, importedModules: null };
+    const file: WorkspaceFile = { path: input.path, absPath, kind, raw: input.text, moduleName, isPackage, version: ++this.versionCounter, importedModules: importsOfText(kind, input.text, moduleName, isPackage) };
     this.files.set(absPath, file);
     this.registerModuleName(file);
     this.analyses.delete(absPath);
     this.memo.clear();
     this.importers = null;
+    // A new module name may resolve imports that pointed nowhere before: drop those files' summaries too.
+    for (const dependent of this.summaryDependents(absPath)) stale.add(dependent);
+    for (const dependent of stale) this.summaries.delete(dependent);
     return true;
-  }
-
-  /**
-   * Records the modules a file imports without analysing it (a parallel check learns them from the worker that
-   * analysed the file), so that `dependentsOf` and `importsOf` need not parse files this process never checks.
-   */
-  setImportedModules(absPathIn: string, modules: readonly string[]): void {
-    const file = this.files.get(path.resolve(absPathIn));
-    if (!file || file.importedModules) return;
-    file.importedModules = [...modules];
-    this.importers = null;
   }
 
   /** Removes a file; returns false when it was not known. */
@@ -111,7 +118,9 @@ export class Workspace {
     const absPath = path.resolve(absPathIn);
     const existing = this.files.get(absPath);
     if (!existing) return false;
+    for (const dependent of this.summaryDependents(absPath)) this.summaries.delete(dependent);
     this.unregisterModuleName(existing);
+    this.moduleLookups.clear();
     this.files.delete(absPath);
     this.analyses.delete(absPath);
     this.preParsed.delete(absPath);
@@ -177,6 +186,79 @@ export class Workspace {
     return evicted;
   }
 
+  /**
+   * A summary of one file: `compute` runs on the file's analysis the first time and whenever the file or a file
+   * it imports changed since; the value is kept across cache trims. It must be plain data: no syntax nodes, classes
+   * or other objects of an analysis (those are rebuilt when an evicted file is analysed again), so that holding
+   * summaries of every file costs little memory. Null when the file is not part of the workspace.
+   */
+  fileSummary<T>(name: string, absPathIn: string, compute: (analysis: FileAnalysis) => T): T | null {
+    const absPath = path.resolve(absPathIn);
+    let perFile = this.summaries.get(absPath);
+    if (perFile?.has(name)) return perFile.get(name) as T;
+    const analysis = this.analysis(absPath);
+    if (!analysis) return null;
+    const value = compute(analysis);
+    perFile = this.summaries.get(absPath);
+    if (!perFile) {
+      perFile = new Map();
+      this.summaries.set(absPath, perFile);
+    }
+    perFile.set(name, value);
+    return value;
+  }
+
+  /** The summaries held for some files (plain data, to hand to another workspace over the same texts). */
+  exportSummaries(absPaths: readonly string[]): [string, [string, unknown][]][] {
+    const out: [string, [string, unknown][]][] = [];
+    for (const absPath of absPaths) {
+      const perFile = this.summaries.get(path.resolve(absPath));
+      if (perFile && perFile.size > 0) out.push([path.resolve(absPath), [...perFile]]);
+    }
+    return out;
+  }
+
+  /** Takes summaries computed by another workspace over the same texts; those already held are kept. */
+  importSummaries(entries: readonly [string, [string, unknown][]][]): void {
+    for (const [absPath, values] of entries) {
+      if (!this.files.has(absPath)) continue;
+      let perFile = this.summaries.get(absPath);
+      if (!perFile) {
+        perFile = new Map();
+        this.summaries.set(absPath, perFile);
+      }
+      for (const [name, value] of values) if (!perFile.has(name)) perFile.set(name, value);
+    }
+  }
+
+  /**
+   * The files whose summaries may depend on a file: it and its importers, transitively, as far as import lists are
+   * known (a file never analysed has none, and no summary either). Empty when no summary exists.
+   */
+  private summaryDependents(absPath: string): Set<string> {
+    const out = new Set<string>();
+    if (this.summaries.size === 0) return out;
+    out.add(absPath);
+    const byTarget = new Map<string, string[]>();
+    for (const file of this.files.values()) {
+      if (!file.importedModules) continue;
+      for (const target of this.importsOf(file.absPath)) {
+        const list = byTarget.get(target);
+        if (list) list.push(file.absPath);
+        else byTarget.set(target, [file.absPath]);
+      }
+    }
+    const queue = [absPath];
+    while (queue.length > 0) {
+      for (const importer of byTarget.get(queue.pop()!) ?? []) {
+        if (out.has(importer)) continue;
+        out.add(importer);
+        queue.push(importer);
+      }
+    }
+    return out;
+  }
+
   /** The analysis a syntax node belongs to. */
   analysisOfNode(node: SyntaxNode): FileAnalysis | undefined {
     return this.moduleOwner.get(node.file);
@@ -193,6 +275,16 @@ export class Workspace {
 
   /** Absolute path of the workspace module with a dotted name (see moduleByName), without analysing it. */
   moduleFileByName(name: string, fromAbsPath?: string): string | null {
+    // Resolution depends only on the set of files and the importer, so it is cached until that set changes.
+    const key = fromAbsPath ? `${fromAbsPath}\0${name}` : name;
+    const cached = this.moduleLookups.get(key);
+    if (cached !== undefined) return cached;
+    const found = this.resolveModuleFile(name, fromAbsPath);
+    this.moduleLookups.set(key, found);
+    return found;
+  }
+
+  private resolveModuleFile(name: string, fromAbsPath?: string): string | null {
     if (fromAbsPath) {
       const dir = path.dirname(fromAbsPath);
       const rel = name.split('.');
@@ -236,7 +328,7 @@ export class Workspace {
     const absPath = path.resolve(absPathIn);
     const file = this.files.get(absPath);
     if (!file) return [];
-    const names = file.importedModules ?? (this.analysis(absPath) ? file.importedModules ?? [] : []);
+    const names = file.importedModules ?? [];
     const out = new Set<string>();
     for (const name of names) {
       const parts = name.split('.');
@@ -293,7 +385,6 @@ export class Workspace {
     const parsed = typeof handed === 'function' ? handed() : handed;
     const syntax = parsed && parsed.text === text ? parsed : PythonDocument.parse(this.parser(), text).syntax;
     const module = new ModuleAnalysis(syntax, file.moduleName, file.isPackage);
-    file.importedModules = [...module.importedModules];
     return { file, text, notebook, syntax, module, unreadable };
   }
 
@@ -317,6 +408,16 @@ export class Workspace {
       if (next.length) this.byModuleName.set(suffix, next);
       else this.byModuleName.delete(suffix);
     }
+  }
+}
+
+/** The modules a file's text imports; a notebook's code cells are read as its virtual module. */
+function importsOfText(kind: 'python' | 'notebook', raw: string, moduleName: string, isPackage: boolean): string[] | null {
+  if (kind === 'python') return scanImports(raw, moduleName, isPackage);
+  try {
+    return scanImports(readNotebook(raw).text, moduleName, isPackage);
+  } catch {
+    return null;
   }
 }
 
