@@ -15,11 +15,14 @@ const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 const bin = path.join(root, 'server', 'bin', 'noisewise.js');
 
 function options(argv) {
-  const o = { edits: 100, lines: 3000, cpuProf: null };
+  const o = { edits: 100, lines: 3000, cpuProf: null, memoryEdits: 10_000 };
   for (let i = 0; i < argv.length; i++) {
     if (argv[i] === '--edits') o.edits = Number(argv[++i]);
     else if (argv[i] === '--lines') o.lines = Number(argv[++i]);
-    else if (argv[i] === '--quick') o.edits = 30;
+    else if (argv[i] === '--quick') {
+      o.edits = 30;
+      o.memoryEdits = 2_000;
+    } else if (argv[i] === '--memory-edits') o.memoryEdits = Number(argv[++i]);
     else if (argv[i] === '--cpu-prof') o.cpuProf = path.resolve(argv[++i]);
     else throw new Error(`unknown argument ${argv[i]}`);
   }
@@ -135,6 +138,47 @@ async function stop(server) {
   server.connection.dispose();
 }
 
+/** Resident set size of a process in MB (Linux). */
+function rssMb(pid) {
+  const status = fs.readFileSync(`/proc/${pid}/status`, 'utf8');
+  const kb = Number(/VmRSS:\s+(\d+)/.exec(status)?.[1] ?? NaN);
+  return Math.round((kb / 1024) * 10) / 10;
+}
+
+async function memoryOverEdits(folder, uri, text, typingLine, edits) {
+  const server = await startServer(folder, false, null);
+  const opened = server.waitDiagnostics((p) => p.uri === uri && p.version === 1);
+  await server.connection.sendNotification('textDocument/didOpen', { textDocument: { uri, languageId: 'python', version: 1, text } });
+  await opened;
+  const column = '# Field notes: '.length;
+  const samples = [{ edits: 0, rssMb: rssMb(server.child.pid) }];
+  const started = performance.now();
+  let version = 1;
+  for (let i = 0; i < edits; ) {
+    for (let k = 0; k < 10 && i < edits; k++, i++) {
+      version++;
+      const change = i % 2 === 0 ? { range: { start: { line: typingLine, character: column }, end: { line: typingLine, character: column } }, text: 'x' } : { range: { start: { line: typingLine, character: column }, end: { line: typingLine, character: column + 1 } }, text: '' };
+      await server.connection.sendNotification('textDocument/didChange', { textDocument: { uri, version }, contentChanges: [change] });
+    }
+    const target = version;
+    await server.waitDiagnostics((p) => p.uri === uri && p.version === target);
+    if (i % 1000 === 0) samples.push({ edits: i, rssMb: rssMb(server.child.pid) });
+  }
+  const seconds = (performance.now() - started) / 1000;
+  await stop(server);
+  // Growth is judged after the first thousand edits (the heap and WASM memory settle at their working size first).
+  const settled = samples.find((s) => s.edits >= Math.min(1000, edits)) ?? samples[0];
+  const last = samples[samples.length - 1];
+  const span = (last.edits - settled.edits) / 1000;
+  return {
+    edits,
+    seconds: Math.round(seconds * 10) / 10,
+    samples,
+    growthMb: Math.round((last.rssMb - settled.rssMb) * 10) / 10,
+    growthMbPer1000Edits: span > 0 ? Math.round(((last.rssMb - settled.rssMb) / span) * 100) / 100 : null,
+  };
+}
+
 async function main() {
   const opts = options(process.argv.slice(2));
   if (!fs.existsSync(path.join(root, 'server', 'dist', 'noisewise.js'))) throw new Error('the bundle is missing: run npm run build');
@@ -188,6 +232,12 @@ async function main() {
     column++;
   }
   await stop(pull);
+
+  // Memory over many edits: a character typed and deleted again, alternately (the text returns to the same two
+  // states, so any lasting growth is a leak: syntax trees or parsers not freed in WASM memory, caches that keep every
+  // version). Edits come in bursts of ten, each burst waited for, like fast typing. The server's resident set size is
+  // read from /proc after every thousand edits.
+  const memory = opts.memoryEdits > 0 && fs.existsSync('/proc/self/status') ? await memoryOverEdits(folder, uri, text, typingLine, opts.memoryEdits) : null;
   fs.rmSync(folder, { recursive: true, force: true });
 
   const result = {
@@ -197,6 +247,7 @@ async function main() {
     file: { lines: lineCount, bytes: Buffer.byteLength(text), findings, pulledFindings: firstPull.items?.length ?? null },
     coldStart: { firstDiagnosticsMs: Math.round(coldStartMs * 10) / 10, pullFirstDiagnosticsMs: Math.round(pullColdStartMs * 10) / 10, firstPullRequestMs: Math.round(firstPullMs * 10) / 10 },
     editToDiagnostics: { edits: opts.edits, kind: 'one character typed into a comment line in the middle of the file, sequentially', push: summary(pushSamples), pull: summary(pullSamples) },
+    memoryOverEdits: memory,
   };
   process.stdout.write(JSON.stringify(result, null, 2) + '\n');
 }

@@ -634,6 +634,25 @@ function literal(value: number): string {
   return /[.eE]/.test(text) ? text : `${text}.0`;
 }
 
+/** The `x.<name>` attribute nodes of a file, in source order (indexed by name once per file). */
+function attributesNamed(sem: Semantics, absPath: string, name: string): SyntaxNode[] {
+  const memo = sem.workspace.memoTable<string, Map<string, SyntaxNode[]>>('unconstrained-std:attributes-by-name');
+  let index = memo.get(absPath);
+  if (!index) {
+    index = new Map();
+    memo.set(absPath, index);
+    for (const node of sem.workspace.analysis(absPath)?.syntax.nodes ?? []) {
+      if (node.type !== 'attribute') continue;
+      const attribute = node.child('attribute')?.text;
+      if (attribute === undefined) continue;
+      const list = index.get(attribute);
+      if (list) list.push(node);
+      else index.set(attribute, [node]);
+    }
+  }
+  return index.get(name) ?? [];
+}
+
 /**
  * Every reference to `<instance>.<name>` for instances of the class and its subclasses in the workspace, classified:
  * the declaration (`self.name = nn.Parameter(...)`), reads of the value (rewritten with the transform), and raw
@@ -649,10 +668,7 @@ function attributeUses(sem: Semantics, cls: ClassInfo, name: string): AttributeU
   }
   const uses: AttributeUse[] = [];
   for (const file of [...files].sort()) {
-    const analysis = sem.workspace.analysis(file);
-    if (!analysis) continue;
-    for (const node of analysis.syntax.nodes) {
-      if (node.type !== 'attribute' || node.child('attribute')?.text !== name) continue;
+    for (const node of attributesNamed(sem, file, name)) {
       const object = node.child('object');
       if (!object) continue;
       const type = sem.typeOf(object);
