@@ -98,10 +98,10 @@ function summary(samples) {
 }
 
 /** Starts the server on a folder with one file; resolves once it is initialized, with timing marks. */
-async function startServer(folder, pull, cpuProf) {
+async function startServer(folder, pull, cpuProf, extraNodeArgs = []) {
   const home = fs.mkdtempSync(path.join(os.tmpdir(), 'noisewise-bench-home-'));
   const t0 = performance.now();
-  const nodeArgs = cpuProf ? ['--cpu-prof', '--cpu-prof-dir', cpuProf] : [];
+  const nodeArgs = [...extraNodeArgs, ...(cpuProf ? ['--cpu-prof', '--cpu-prof-dir', cpuProf] : [])];
   const child = spawn(process.execPath, [...nodeArgs, bin, 'server', '--stdio'], { cwd: folder, env: { ...process.env, HOME: home, XDG_CACHE_HOME: path.join(home, '.cache') }, stdio: ['pipe', 'pipe', 'inherit'] });
   const connection = createProtocolConnection(new StreamMessageReader(child.stdout), new StreamMessageWriter(child.stdin));
   const waiters = [];
@@ -146,12 +146,18 @@ function rssMb(pid) {
 }
 
 async function memoryOverEdits(folder, uri, text, typingLine, edits) {
-  const server = await startServer(folder, false, null);
+  // --expose-gc lets the server's memory-stats request collect garbage first, so its heap figure is what is live.
+  const server = await startServer(folder, false, null, ['--expose-gc']);
+  const stats = async (edits) => {
+    const m = await server.connection.sendRequest('noisewise/memoryStats');
+    const mb = (bytes) => (typeof bytes === 'number' ? Math.round((bytes / 1048576) * 10) / 10 : null);
+    return { edits, rssMb: rssMb(server.child.pid), liveHeapMb: mb(m.heapUsedBytes), wasmMb: mb(m.wasmMemoryBytes) };
+  };
   const opened = server.waitDiagnostics((p) => p.uri === uri && p.version === 1);
   await server.connection.sendNotification('textDocument/didOpen', { textDocument: { uri, languageId: 'python', version: 1, text } });
   await opened;
   const column = '# Field notes: '.length;
-  const samples = [{ edits: 0, rssMb: rssMb(server.child.pid) }];
+  const samples = [await stats(0)];
   const started = performance.now();
   let version = 1;
   for (let i = 0; i < edits; ) {
@@ -162,7 +168,7 @@ async function memoryOverEdits(folder, uri, text, typingLine, edits) {
     }
     const target = version;
     await server.waitDiagnostics((p) => p.uri === uri && p.version === target);
-    if (i % 1000 === 0) samples.push({ edits: i, rssMb: rssMb(server.child.pid) });
+    if (i % 1000 === 0) samples.push(await stats(i));
   }
   const seconds = (performance.now() - started) / 1000;
   await stop(server);
@@ -170,12 +176,17 @@ async function memoryOverEdits(folder, uri, text, typingLine, edits) {
   const settled = samples.find((s) => s.edits >= Math.min(1000, edits)) ?? samples[0];
   const last = samples[samples.length - 1];
   const span = (last.edits - settled.edits) / 1000;
+  const change = (key) => (last[key] === null || settled[key] === null ? null : Math.round((last[key] - settled[key]) * 10) / 10);
   return {
     edits,
     seconds: Math.round(seconds * 10) / 10,
     samples,
-    growthMb: Math.round((last.rssMb - settled.rssMb) * 10) / 10,
-    growthMbPer1000Edits: span > 0 ? Math.round(((last.rssMb - settled.rssMb) / span) * 100) / 100 : null,
+    // The live heap (after a full collection) plus WASM memory: what a leak would grow.
+    growthMb: change('liveHeapMb') === null ? null : Math.round((change('liveHeapMb') + (change('wasmMb') ?? 0)) * 10) / 10,
+    liveHeapGrowthMb: change('liveHeapMb'),
+    wasmGrowthMb: change('wasmMb'),
+    rssGrowthMb: change('rssMb'),
+    growthMbPer1000Edits: span > 0 && change('liveHeapMb') !== null ? Math.round(((change('liveHeapMb') + (change('wasmMb') ?? 0)) / span) * 100) / 100 : null,
   };
 }
 

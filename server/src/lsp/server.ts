@@ -43,7 +43,7 @@ import { ConfigError, clearConfigCache, isExcluded, loadConfigFor, type Resolved
 import type { Finding } from '../engine/finding';
 import type { EngineSettings, FileReport } from '../engine/types';
 import { readNotebook } from '../parse/notebook';
-import type { SyntaxFile } from '../parse/syntax';
+import { type SyntaxFile, wasmMemoryBytes } from '../parse/syntax';
 import { Workspace } from '../semantic/workspace';
 import { FIX_ALL_KIND, type EditContext, fixAllRaw, kindWanted, minimalEdit, quickFixes, toWorkspaceEdit, type FileEdit } from './code-actions';
 import { toDiagnostics, type DiagnosticContext } from './diagnostics';
@@ -197,6 +197,15 @@ export class NoisewiseServer {
     c.onInitialize((params) => this.initialize(params));
     c.onInitialized(() => void this.guard('initialized', () => this.initialized()));
     c.onShutdown(() => this.shutdown());
+    // Memory figures for the benchmark and for bug reports: the JavaScript heap (after a full collection when the
+    // process runs with --expose-gc) and the parser's WASM memory, which only grows and so shows any syntax tree
+    // that is never freed.
+    c.onRequest('noisewise/memoryStats', () => {
+      const gc = (globalThis as { gc?: () => void }).gc;
+      if (typeof gc === 'function') gc();
+      const usage = process.memoryUsage();
+      return { collected: typeof gc === 'function', heapUsedBytes: usage.heapUsed, externalBytes: usage.external, rssBytes: usage.rss, wasmMemoryBytes: wasmMemoryBytes() };
+    });
     c.onDidOpenTextDocument((p) => this.guardSync('didOpen', () => this.openText(p.textDocument)));
     c.onDidChangeTextDocument((p) => this.guardSync('didChange', () => this.changeText(p.textDocument.uri, p.textDocument.version, p.contentChanges)));
     c.onDidCloseTextDocument((p) => this.guardSync('didClose', () => this.closeText(p.textDocument.uri)));

@@ -117,6 +117,12 @@ function wasmInternals(): WasmInternals | null {
   return internals && internals.C && typeof internals.C._ts_tree_cursor_goto_first_child_wasm === 'function' ? internals : null;
 }
 
+/** The size of web-tree-sitter's WASM memory in bytes (it never shrinks), or null when it cannot be read. */
+export function wasmMemoryBytes(): number | null {
+  const internals = wasmInternals() as (WasmInternals & { C: { HEAP8?: Int8Array } }) | null;
+  return internals?.C.HEAP8?.buffer.byteLength ?? null;
+}
+
 /** Whether `toSyntaxFile` uses the direct WASM walk (for tests and the benchmark to report). */
 export function fastWalkAvailable(): boolean {
   return wasmInternals() !== null;
