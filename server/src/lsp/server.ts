@@ -38,7 +38,8 @@ import { allRules, type RegisteredRule } from '../../../rules/index';
 import { collectFiles, readSourceFile, sourceKind } from '../cli/files';
 import { ruleHelpUri, VERSION } from '../cli/product';
 import { budgetFromEnv } from '../engine/budget';
-import { checkFile, getParser } from '../engine/check';
+import { checkFile, getParser, summaryKinds } from '../engine/check';
+import { prepareSummaries } from '../engine/summaries';
 import { ConfigError, clearConfigCache, isExcluded, loadConfigFor, type ResolvedConfig } from '../engine/config';
 import type { Finding } from '../engine/finding';
 import type { EngineSettings, FileReport } from '../engine/types';
@@ -719,6 +720,22 @@ export class NoisewiseServer {
         }
         this.markLoaded();
         const files = [...found.keys()].sort();
+        // Per-file summaries first, one file at a time with the cache trimmed in between (last files first, so the
+        // cache ends up holding the files checked first): a workspace-wide question asked by the first check then
+        // reads summaries instead of analysing, and keeping, every file at once.
+        const kinds = summaryKinds();
+        if (kinds.length > 0) {
+          progress.report(0, 'summarising files');
+          for (let k = files.length - 1; k >= 0 && !stop(); k--) {
+            const absPath = files[k]!;
+            try {
+              prepareSummaries(this.workspaceFor(absPath), [absPath], kinds, this.budgetMs);
+            } catch (error) {
+              this.logFailure(`summarising ${absPath}`, error);
+            }
+            if (k % 20 === 0) await yieldNow();
+          }
+        }
         let i = 0;
         for (const absPath of files) {
           if (stop()) break;
