@@ -53,8 +53,8 @@ const DEFAULT_CACHE_LIMIT = 400;
 export class Workspace {
   private readonly files = new Map<string, WorkspaceFile>();
   private readonly byModuleName = new Map<string, string[]>();
-  /** `moduleFileByName` answers (importer + name → file); cleared when a file is added or removed. */
-  private readonly moduleLookups = new Map<string, string | null>();
+  /** `moduleFileByName` answers (importer → name → file); cleared when a file is added or removed. */
+  private readonly moduleLookups = new Map<string, Map<string, string | null>>();
   private readonly analyses = new Map<string, FileAnalysis>();
   private readonly moduleOwner = new WeakMap<SyntaxFile, FileAnalysis>();
   /** Syntax trees handed in by `setFile({ parsed })`, reused by `analyse` while they match the file's text. */
@@ -276,11 +276,16 @@ export class Workspace {
   /** Absolute path of the workspace module with a dotted name (see moduleByName), without analysing it. */
   moduleFileByName(name: string, fromAbsPath?: string): string | null {
     // Resolution depends only on the set of files and the importer, so it is cached until that set changes.
-    const key = fromAbsPath ? `${fromAbsPath}\0${name}` : name;
-    const cached = this.moduleLookups.get(key);
+    const importer = fromAbsPath ?? '';
+    let byName = this.moduleLookups.get(importer);
+    if (!byName) {
+      byName = new Map();
+      this.moduleLookups.set(importer, byName);
+    }
+    const cached = byName.get(name);
     if (cached !== undefined) return cached;
     const found = this.resolveModuleFile(name, fromAbsPath);
-    this.moduleLookups.set(key, found);
+    byName.set(name, found);
     return found;
   }
 
