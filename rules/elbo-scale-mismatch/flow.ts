@@ -1447,14 +1447,9 @@ function isCallableMethod(fn: FunctionInfo): boolean {
   return !!fn.owner && (fn.name === 'forward' || fn.name === 'call' || fn.name === '__call__');
 }
 
-/** Iterative preorder walk of a subtree. */
-export function* descendants(root: SyntaxNode): Generator<SyntaxNode> {
-  const stack: SyntaxNode[] = [root];
-  while (stack.length) {
-    const n = stack.pop()!;
-    yield n;
-    for (let i = n.children.length - 1; i >= 0; i--) stack.push(n.children[i]!);
-  }
+/** Every node of a subtree in preorder, the root first. */
+export function descendants(root: SyntaxNode): SyntaxNode[] {
+  return root.subtree();
 }
 
 /** Constructs that make the code inside them run conditionally or repeatedly (as the semantic model counts them). */

@@ -628,12 +628,5 @@ function targetUsedElsewhere(sem: Semantics, target: SyntaxNode, repetition: Rep
 
 /** Every node of a subtree in preorder (nested functions included). */
 function descendants(root: SyntaxNode): SyntaxNode[] {
-  const out: SyntaxNode[] = [];
-  const stack: SyntaxNode[] = [root];
-  while (stack.length) {
-    const n = stack.pop()!;
-    out.push(n);
-    for (let i = n.children.length - 1; i >= 0; i--) stack.push(n.children[i]!);
-  }
-  return out;
+  return root.subtree();
 }

@@ -713,12 +713,7 @@ function sameOperand(sem: Semantics, a: SyntaxNode, b: SyntaxNode): boolean {
   });
 }
 
-/** Iterative preorder walk of a subtree. */
-export function* descendants(root: SyntaxNode): Generator<SyntaxNode> {
-  const stack: SyntaxNode[] = [root];
-  while (stack.length) {
-    const n = stack.pop()!;
-    yield n;
-    for (let i = n.children.length - 1; i >= 0; i--) stack.push(n.children[i]!);
-  }
+/** Every node of a subtree in preorder, the root first. */
+export function descendants(root: SyntaxNode): SyntaxNode[] {
+  return root.subtree();
 }

@@ -412,14 +412,9 @@ function distributionName(sem: Semantics, call: SyntaxNode): string {
   return `${q.split('.').pop()} distribution`;
 }
 
-/** Iterative preorder walk of a subtree. */
-function* descendants(root: SyntaxNode): Generator<SyntaxNode> {
-  const stack: SyntaxNode[] = [root];
-  while (stack.length) {
-    const n = stack.pop()!;
-    yield n;
-    for (let i = n.children.length - 1; i >= 0; i--) stack.push(n.children[i]!);
-  }
+/** Every node of a subtree in preorder, the root first. */
+function descendants(root: SyntaxNode): SyntaxNode[] {
+  return root.subtree();
 }
 
 /** The argument of a logarithm (`torch.log(x)`, `x.log()`, `math.log(x)`). */

@@ -202,10 +202,11 @@ function runRules(workspace: Workspace, analysis: FileAnalysis, settings: Engine
   // stay) while the others go on; when the file's time is up, every rule stops.
   const stopped = new Map<string, SyntaxNode>();
   let fileStoppedAt: SyntaxNode | null = null;
-  const call = (id: string, at: SyntaxNode, fn: () => void): void => {
+  // The listener and its node are passed separately: no closure is made per node and listener.
+  const call = (id: string, at: SyntaxNode, fn: (node: SyntaxNode) => void): void => {
     deadline.enter(id);
     try {
-      fn();
+      fn(at);
     } catch (error) {
       if (error instanceof BudgetExceededError) stopped.set(id, at);
       else {
@@ -227,7 +228,7 @@ function runRules(workspace: Workspace, analysis: FileAnalysis, settings: Engine
         fileStoppedAt = node;
         break walk;
       }
-      call(id, node, () => fn(node));
+      call(id, node, fn);
     }
   }
   for (const { id, fn } of finishers) {

@@ -62,6 +62,16 @@ export class SyntaxNode {
     else this.children.push(child);
   }
 
+  /**
+   * This node and every node below it, in preorder (the order of the file's `nodes`, where a subtree is one run),
+   * as a fresh array. A node outside the `nodes` array (a MISSING token kept only in `errors`) is a leaf.
+   */
+  subtree(): SyntaxNode[] {
+    const nodes = this.file.nodes;
+    if (nodes[this.id] !== this) return [this];
+    return nodes.slice(this.id, this.file.lastDescendantId(this) + 1);
+  }
+
   /** Closest ancestor (or this node) whose type is one of the given types. */
   closest(...types: string[]): SyntaxNode | null {
     for (let n: SyntaxNode | null = this; n; n = n.parent) if (types.includes(n.type)) return n;
@@ -84,8 +94,25 @@ export class SyntaxFile {
   root!: SyntaxNode;
   /** ERROR and MISSING nodes, for reporting and for rules that want to stay quiet near broken code. */
   readonly errors: SyntaxNode[] = [];
+  /** Per node id, the id of its last descendant (computed on first use; preorder makes every subtree contiguous). */
+  private lastDescendants: Int32Array | null = null;
 
   constructor(readonly text: string) {}
+
+  /** The id of a node's last descendant in `nodes` (the node's own id for a leaf). */
+  lastDescendantId(node: SyntaxNode): number {
+    if (this.lastDescendants === null) {
+      const nodes = this.nodes;
+      const last = new Int32Array(nodes.length);
+      // Children have larger ids than their parent, so one backward pass sees every child before its parent.
+      for (let i = nodes.length - 1; i >= 0; i--) {
+        const children = nodes[i]!.children;
+        last[i] = children.length > 0 ? last[children[children.length - 1]!.id]! : i;
+      }
+      this.lastDescendants = last;
+    }
+    return this.lastDescendants[node.id]!;
+  }
 }
 
 /** Node types whose anonymous children are kept because they carry the meaning (the operator). */

@@ -9,6 +9,36 @@
 const IDENT_REST = /[\p{L}\p{Nl}\p{Mn}\p{Mc}\p{Nd}\p{Pc}]/u;
 const IDENT_START = /[\p{L}\p{Nl}_]/u;
 
+/** True for an ASCII letter, digit or underscore (the common case, tested without a regular expression). */
+function asciiWord(c: number): boolean {
+  return (c >= 97 && c <= 122) || (c >= 65 && c <= 90) || (c >= 48 && c <= 57) || c === 95;
+}
+
+/** The end of the identifier that starts at `i` (whose first character is known to start one). */
+function identifierEnd(text: string, i: number): number {
+  const n = text.length;
+  let j = i;
+  while (j < n) {
+    const c = text.charCodeAt(j);
+    if (c < 128) {
+      if (!asciiWord(c)) break;
+      j++;
+      continue;
+    }
+    const next = String.fromCodePoint(text.codePointAt(j)!);
+    if (!IDENT_REST.test(next)) break;
+    j += next.length;
+  }
+  return j;
+}
+
+/** Whether an identifier starts at `i`: ASCII letters and `_` directly, other characters by their Unicode class. */
+function startsIdentifier(text: string, i: number): boolean {
+  const c = text.charCodeAt(i);
+  if (c < 128) return (c >= 97 && c <= 122) || (c >= 65 && c <= 90) || c === 95;
+  return IDENT_START.test(String.fromCodePoint(text.codePointAt(i)!));
+}
+
 type Token = { kind: 'name'; text: string; end: number } | { kind: 'op'; text: string; end: number } | { kind: 'end'; end: number };
 
 /**
@@ -75,15 +105,9 @@ export function scanImports(text: string, moduleName: string, isPackage: boolean
       i++;
       continue;
     }
-    const ch = String.fromCodePoint(text.codePointAt(i)!);
-    if (IDENT_START.test(ch)) {
+    if (startsIdentifier(text, i)) {
       const start = i;
-      i += ch.length;
-      while (i < n) {
-        const next = String.fromCodePoint(text.codePointAt(i)!);
-        if (!IDENT_REST.test(next)) break;
-        i += next.length;
-      }
+      i = identifierEnd(text, i);
       // A string prefix (`rb'…'`, `f"…"`) belongs to the string.
       if (i < n && (text.charCodeAt(i) === 34 || text.charCodeAt(i) === 39) && /^[rRbBuUfFtT]{1,2}$/.test(text.slice(start, i))) {
         const end = skipString(text, i);
@@ -105,7 +129,7 @@ export function scanImports(text: string, moduleName: string, isPackage: boolean
     }
     statementStart = false;
     lineStart = false;
-    i += ch.length;
+    i += c >= 0xd800 && c <= 0xdbff ? 2 : 1;
   }
   return [...out];
 }
@@ -144,16 +168,11 @@ function token(text: string, i: number, inParens: boolean): Token {
     else break;
   }
   if (i >= n) return { kind: 'end', end: i };
-  const ch = String.fromCodePoint(text.codePointAt(i)!);
-  if (IDENT_START.test(ch)) {
-    let j = i + ch.length;
-    while (j < n) {
-      const next = String.fromCodePoint(text.codePointAt(j)!);
-      if (!IDENT_REST.test(next)) break;
-      j += next.length;
-    }
+  if (startsIdentifier(text, i)) {
+    const j = identifierEnd(text, i);
     return { kind: 'name', text: text.slice(i, j), end: j };
   }
+  const ch = String.fromCodePoint(text.codePointAt(i)!);
   if (ch === '\n' || ch === ';' || ch === '#') return { kind: 'end', end: i };
   return { kind: 'op', text: ch, end: i + 1 };
 }

@@ -55,6 +55,8 @@ export class Workspace {
   private readonly byModuleName = new Map<string, string[]>();
   /** `moduleFileByName` answers (importer → name → file); cleared when a file is added or removed. */
   private readonly moduleLookups = new Map<string, Map<string, string | null>>();
+  /** How many files have each stem: `models` for models.py, `lab` for lab/__init__.py (see resolveModuleFile). */
+  private readonly stems = new Map<string, number>();
   private readonly analyses = new Map<string, FileAnalysis>();
   private readonly moduleOwner = new WeakMap<SyntaxFile, FileAnalysis>();
   /** Syntax trees handed in by `setFile({ parsed })`, reused by `analyse` while they match the file's text. */
@@ -290,6 +292,10 @@ export class Workspace {
   }
 
   private resolveModuleFile(name: string, fromAbsPath?: string): string | null {
+    // Most names asked for are outside the workspace (`torch.nn`): no file is called like their last part, and no
+    // module name ends with them, so no path needs building.
+    const lastDot = name.lastIndexOf('.');
+    if (!this.byModuleName.has(name) && !this.stems.has(lastDot < 0 ? name : name.slice(lastDot + 1))) return null;
     if (fromAbsPath) {
       const dir = path.dirname(fromAbsPath);
       const rel = name.split('.');
@@ -394,6 +400,8 @@ export class Workspace {
   }
 
   private registerModuleName(file: WorkspaceFile): void {
+    const stem = stemOf(file.absPath);
+    this.stems.set(stem, (this.stems.get(stem) ?? 0) + 1);
     const parts = file.moduleName.split('.');
     for (let i = 0; i < parts.length; i++) {
       const suffix = parts.slice(i).join('.');
@@ -404,6 +412,10 @@ export class Workspace {
   }
 
   private unregisterModuleName(file: WorkspaceFile): void {
+    const stem = stemOf(file.absPath);
+    const count = (this.stems.get(stem) ?? 1) - 1;
+    if (count > 0) this.stems.set(stem, count);
+    else this.stems.delete(stem);
     const parts = file.moduleName.split('.');
     for (let i = 0; i < parts.length; i++) {
       const suffix = parts.slice(i).join('.');
@@ -414,6 +426,12 @@ export class Workspace {
       else this.byModuleName.delete(suffix);
     }
   }
+}
+
+/** The name a file is imported by as the last part of a dotted name: its stem, or its folder's for `__init__`. */
+function stemOf(absPath: string): string {
+  const stem = path.basename(absPath).replace(/\.(py|ipynb)$/, '');
+  return stem === '__init__' ? path.basename(path.dirname(absPath)) : stem;
 }
 
 /** The modules a file's text imports; a notebook's code cells are read as its virtual module. */
