@@ -1688,7 +1688,7 @@ function callersOf(sem: Semantics, fn: FunctionInfo): SyntaxNode[] {
   const owner = sem.workspace.analysisOfNode(fn.node) ?? (fn.node.file === sem.analysis.syntax ? sem.analysis : null);
   if (!owner) return out;
   for (const file of [...sem.workspace.dependentsOf(owner.file.absPath)].sort()) {
-    for (const node of callsNamed(sem, file, fn.name)) {
+    for (const node of sem.callsNamed(file, fn.name)) {
       const callee = sem.callee(node);
       if (callee.symbol?.kind === 'function' && callee.symbol.fn === fn) out.push(node);
     }
@@ -1696,26 +1696,6 @@ function callersOf(sem: Semantics, fn: FunctionInfo): SyntaxNode[] {
   return out;
 }
 
-/** The calls of a file whose callee's last name is `name` (`f(…)`, `obj.f(…)`), indexed once per file. */
-function callsNamed(sem: Semantics, absPath: string, name: string): SyntaxNode[] {
-  const memo = sem.workspace.memoTable<string, Map<string, SyntaxNode[]>>('logit-space-average:calls-by-name');
-  let index = memo.get(absPath);
-  if (!index) {
-    index = new Map();
-    memo.set(absPath, index);
-    const analysis = absPath === sem.analysis.file.absPath ? sem.analysis : sem.workspace.analysis(absPath);
-    for (const node of analysis?.syntax.nodes ?? []) {
-      if (node.type !== 'call') continue;
-      const fnNode = node.child('function');
-      const last = fnNode?.type === 'attribute' ? fnNode.child('attribute')?.text : fnNode?.text;
-      if (last === undefined) continue;
-      const list = index.get(last);
-      if (list) list.push(node);
-      else index.set(last, [node]);
-    }
-  }
-  return index.get(name) ?? [];
-}
 
 /** Bindings made at an assignment target. */
 function bindingsAt(sem: Semantics, target: SyntaxNode): Binding[] {

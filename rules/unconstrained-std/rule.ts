@@ -629,24 +629,6 @@ function literal(value: number): string {
   return /[.eE]/.test(text) ? text : `${text}.0`;
 }
 
-/** The `x.<name>` attribute nodes of a file, in source order (indexed by name once per file). */
-function attributesNamed(sem: Semantics, absPath: string, name: string): SyntaxNode[] {
-  const memo = sem.workspace.memoTable<string, Map<string, SyntaxNode[]>>('unconstrained-std:attributes-by-name');
-  let index = memo.get(absPath);
-  if (!index) {
-    index = new Map();
-    memo.set(absPath, index);
-    for (const node of sem.workspace.analysis(absPath)?.syntax.nodes ?? []) {
-      if (node.type !== 'attribute') continue;
-      const attribute = node.child('attribute')?.text;
-      if (attribute === undefined) continue;
-      const list = index.get(attribute);
-      if (list) list.push(node);
-      else index.set(attribute, [node]);
-    }
-  }
-  return index.get(name) ?? [];
-}
 
 /**
  * Every reference to `<instance>.<name>` for instances of the class and its subclasses in the workspace, classified:
@@ -663,7 +645,7 @@ function attributeUses(sem: Semantics, cls: ClassInfo, name: string): AttributeU
   }
   const uses: AttributeUse[] = [];
   for (const file of [...files].sort()) {
-    for (const node of attributesNamed(sem, file, name)) {
+    for (const node of sem.attributesNamed(file, name)) {
       const object = node.child('object');
       if (!object) continue;
       const type = sem.typeOf(object);

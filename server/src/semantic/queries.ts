@@ -375,6 +375,39 @@ export class Semantics {
     return out;
   }
 
+  /** The calls in a workspace file whose callee's last name is `name` (`f(…)`, `obj.f(…)`), from a per-file index. */
+  callsNamed(absPath: string, name: string): SyntaxNode[] {
+    return this.byLastName('calls-by-name', absPath, name, (node) => {
+      if (node.type !== 'call') return undefined;
+      const fn = node.child('function');
+      return fn?.type === 'attribute' ? fn.child('attribute')?.text : fn?.text;
+    });
+  }
+
+  /** The attribute nodes `x.<name>` of a workspace file, from a per-file index. */
+  attributesNamed(absPath: string, name: string): SyntaxNode[] {
+    return this.byLastName('attributes-by-name', absPath, name, (node) => (node.type === 'attribute' ? node.child('attribute')?.text : undefined));
+  }
+
+  /** Nodes of a file grouped by a name `pick` reads from them, built once per file and memo lifetime. */
+  private byLastName(table: string, absPath: string, name: string, pick: (node: SyntaxNode) => string | undefined): SyntaxNode[] {
+    const memo = this.workspace.memoTable<string, Map<string, SyntaxNode[]>>(table);
+    let index = memo.get(absPath);
+    if (!index) {
+      index = new Map();
+      memo.set(absPath, index);
+      const analysis = absPath === this.analysis.file.absPath ? this.analysis : this.workspace.analysis(absPath);
+      for (const node of analysis?.syntax.nodes ?? []) {
+        const key = pick(node);
+        if (key === undefined) continue;
+        const list = index.get(key);
+        if (list) list.push(node);
+        else index.set(key, [node]);
+      }
+    }
+    return index.get(name) ?? [];
+  }
+
   /** The class whose instance `self` (the first parameter of a method) is, for a node inside a method. */
   selfClass(node: SyntaxNode): ClassInfo | null {
     const module = this.moduleOf(node);
