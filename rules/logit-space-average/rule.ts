@@ -1973,7 +1973,7 @@ function fixesFor(context: RuleContext, average: Average, uses: PredictiveUse[],
   if (samples.foreignArrays || form.type === 'running') return [];
   if (form.type === 'stacked' && (form.axis < 0 || form.keepdim)) return [];
   const node = average.node;
-  const torch = localModuleName(sem, node, 'torch');
+  const torch = sem.moduleAlias(node, 'torch');
   const operandText = (): string | null => {
     if (form.type === 'stacked') return form.operand.text;
     if (form.type === 'list-sum') return torch ? `${torch}.stack(${form.list.text})` : null;
@@ -2055,7 +2055,7 @@ function normalisedSamplesText(context: RuleContext, average: Average, use: Pred
     return spliceText(averageNode, [{ start: form.element.start, end: form.element.end, text: inner }]);
   }
   if (form.type === 'list-sum') {
-    const torch = localModuleName(sem, averageNode, 'torch');
+    const torch = sem.moduleAlias(averageNode, 'torch');
     if (!torch) return null;
     const inner = rebuilt(`${torch}.stack(${form.list.text})`, 1);
     return inner ? `${inner}.mean(dim=0)` : null;
@@ -2077,9 +2077,9 @@ function logOfCount(context: RuleContext, average: Average): { text: string; edi
   const at = average.node;
   const count = countExpression(sem, average);
   if (!count) return null;
-  const math = localModuleName(sem, at, 'math');
+  const math = sem.moduleAlias(at, 'math');
   if (math) return { text: `${math}.log(${count})`, edits: [] };
-  const numpy = localModuleName(sem, at, 'numpy');
+  const numpy = sem.moduleAlias(at, 'numpy');
   if (numpy) return { text: `${numpy}.log(${count})`, edits: [] };
   const insert = importInsertion(sem, at);
   if (insert === null) return null;
@@ -2150,14 +2150,6 @@ function importInsertion(sem: Semantics, at: SyntaxNode): number | null {
   return afterFuture;
 }
 
-/** The module-level name a file binds to a library module (`torch`, `math`, `np`). */
-function localModuleName(sem: Semantics, at: SyntaxNode, qualified: string): string | null {
-  const module = sem.moduleOf(at);
-  for (const [name, bindings] of module.moduleScope.bindings) {
-    if (bindings.length === 1 && bindings[0]!.kind === 'import' && bindings[0]!.qualifiedName === qualified) return name;
-  }
-  return null;
-}
 
 /** True when a text is a primary expression (a name, call, attribute or subscript chain) that needs no parentheses. */
 function isPrimary(text: string): boolean {

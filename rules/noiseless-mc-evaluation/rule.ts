@@ -508,14 +508,6 @@ function layersText(randomness: Randomness): string {
   return `${parts.slice(0, -1).join(', ')} and ${parts[parts.length - 1]}`;
 }
 
-/** A local name bound at module level to a library module (`nn` for torch.nn). */
-function localNameFor(sem: Semantics, at: SyntaxNode, qualified: string): string | null {
-  const module = sem.moduleOf(at);
-  for (const [name, bindings] of module.moduleScope.bindings) {
-    if (bindings.length === 1 && bindings[0]!.kind === 'import' && bindings[0]!.qualifiedName === qualified) return name;
-  }
-  return null;
-}
 
 /** A module-level name in the file of `at` that refers to a workspace class. */
 function localClassName(sem: Semantics, at: SyntaxNode, cls: ClassInfo): string | null {
@@ -563,9 +555,9 @@ function enableDropoutFix(context: RuleContext, model: SyntaxNode, repetition: R
     lineStart = lineEnd + 1;
   }
   const edits: TextEdit[] = [];
-  let nn = localNameFor(sem, stmt, 'torch.nn');
+  let nn = sem.moduleAlias(stmt, 'torch.nn');
   if (!nn) {
-    const torch = localNameFor(sem, stmt, 'torch');
+    const torch = sem.moduleAlias(stmt, 'torch');
     if (torch) nn = `${torch}.nn`;
   }
   const libraryClasses = [...randomness.dropoutClasses].sort().map((q) => q.replace(/^torch\.nn\./, ''));
@@ -604,9 +596,9 @@ function foldInFix(context: RuleContext, key: SyntaxNode, repetition: Repetition
   const sem = context.sem;
   const target = repetition.target ? unwrapParens(repetition.target) : null;
   if (!target || target.type !== 'identifier') return [];
-  let random = localNameFor(sem, key, 'jax.random');
+  let random = sem.moduleAlias(key, 'jax.random');
   if (!random) {
-    const jax = localNameFor(sem, key, 'jax');
+    const jax = sem.moduleAlias(key, 'jax');
     if (jax) random = `${jax}.random`;
   }
   if (!random) return [];

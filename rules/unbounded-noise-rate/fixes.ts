@@ -8,14 +8,6 @@ function floatLiteral(value: number): string {
   return /[.eE]/.test(text) || /inf|nan/i.test(text) ? text : `${text}.0`;
 }
 
-/** A local name bound to a library module at the top of a file (`torch`, `F` for torch.nn.functional). */
-function localNameFor(sem: Semantics, anyNodeInFile: SyntaxNode, qualified: string): string | null {
-  const module = sem.moduleOf(anyNodeInFile);
-  for (const [name, bindings] of module.moduleScope.bindings) {
-    if (bindings.length === 1 && bindings[0]!.kind === 'import' && bindings[0]!.qualifiedName === qualified) return name;
-  }
-  return null;
-}
 
 /** The two fixes: clamp the trainable tensor where it is read; the additive reparameterisation where the layer allows it. */
 export function fixesFor(context: RuleContext, site: NoiseSite, leaf: Leaf): Fix[] {
@@ -83,8 +75,8 @@ function additiveFix(context: RuleContext, site: NoiseSite, leaf: Leaf): Fix | n
   const init = sem.moduleOf(trainable.declaration).enclosingFunction(trainable.declaration);
   if (!init || init.name !== '__init__' || init.owner !== cls) return null;
   if (!onlyReads(sem, cls, trainable.attribute.name, declStatement.child('left')!)) return null;
-  const torch = localNameFor(sem, trainable.declaration, 'torch');
-  const siteTorch = localNameFor(sem, site.rate, 'torch');
+  const torch = sem.moduleAlias(trainable.declaration, 'torch');
+  const siteTorch = sem.moduleAlias(site.rate, 'torch');
   if (!torch || !siteTorch) return null;
   const taken = new Set<string>();
   for (const c of sem.ancestry(cls)) {

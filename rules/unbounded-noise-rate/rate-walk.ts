@@ -1,6 +1,6 @@
 // unbounded-noise-rate, the data flow: from a noise std (or variance) back to the tensor that makes it, recording the
 // monotone steps on the way, so the rule can tell a trainable α or log α from a fixed or derived one and compute its bound.
-import { type ClassInfo, type FileAnalysis, type FunctionInfo, type Semantics, type SyntaxNode, defineFileSummary, summaryOf, unwrapParens } from '../../server/src/engine/api';
+import { assignedName, type ClassInfo, type FileAnalysis, type FunctionInfo, type Semantics, type SyntaxNode, defineFileSummary, summaryOf, unwrapParens } from '../../server/src/engine/api';
 
 /** A monotone step from the trainable tensor outwards to the noise std (or variance). */
 export type Op =
@@ -516,16 +516,6 @@ function asTrainable(sem: Semantics, call: SyntaxNode, attribute: { cls: ClassIn
   if (q && TENSOR_FACTORIES.has(q)) {
     const flag = sem.argument(call, 99, 'requires_grad');
     if (flag && sem.fold(flag) === true) return { declaration: call, init: null, name, attribute, framework: 'other' };
-  }
-  return null;
-}
-
-function assignedName(node: SyntaxNode): string | null {
-  const parent = node.parent;
-  if (parent?.type === 'assignment' && node.field === 'right') {
-    const left = parent.child('left');
-    if (left?.type === 'identifier') return left.text;
-    if (left?.type === 'attribute') return left.child('attribute')?.text ?? null;
   }
   return null;
 }

@@ -1,6 +1,7 @@
 // unconstrained-std: a trainable tensor used directly as a standard deviation (reparameterisation noise scale,
 // the scale of a Normal, or the σ of a Gaussian KL formula) with nothing keeping it positive.
 import {
+  assignedName,
   type ClassInfo,
   defineRule,
   type Fix,
@@ -305,7 +306,7 @@ function walkScale(sem: Semantics, start: SyntaxNode, visit: (origin: SyntaxNode
 function asTrainable(sem: Semantics, origin: SyntaxNode, attribute?: { cls: ClassInfo; name: string }): TrainableSource | null {
   if (origin.type !== 'call') return null;
   const callee = sem.callee(origin);
-  const name = attribute?.name ?? nameOfAssignment(origin) ?? 'this tensor';
+  const name = attribute?.name ?? assignedName(origin) ?? 'this tensor';
   const q = callee.qualifiedName;
   if (q === 'torch.nn.Parameter' || q === 'torch.nn.parameter.Parameter') {
     const flag = sem.argument(origin, 1, 'requires_grad');
@@ -342,16 +343,6 @@ function asTrainable(sem: Semantics, origin: SyntaxNode, attribute?: { cls: Clas
   if (q && TENSOR_FACTORIES.has(q)) {
     const flag = sem.argument(origin, 99, 'requires_grad');
     if (flag && sem.fold(flag) === true) return { declaration: origin, attribute, name, init: null };
-  }
-  return null;
-}
-
-function nameOfAssignment(node: SyntaxNode): string | null {
-  const parent = node.parent;
-  if (parent?.type === 'assignment' && node.field === 'right') {
-    const left = parent.child('left');
-    if (left?.type === 'identifier') return left.text;
-    if (left?.type === 'attribute') return left.child('attribute')?.text ?? null;
   }
   return null;
 }
@@ -523,22 +514,14 @@ function constantFill(sem: Semantics, init: SyntaxNode, depth = 0): { value: num
   return null;
 }
 
-/** A local name bound to a library module in a file (e.g. `F` for torch.nn.functional), if any. */
-function localNameFor(sem: Semantics, anyNodeInFile: SyntaxNode, qualified: string): string | null {
-  const module = sem.moduleOf(anyNodeInFile);
-  for (const [name, bindings] of module.moduleScope.bindings) {
-    if (bindings.length === 1 && bindings[0]!.kind === 'import' && bindings[0]!.qualifiedName === qualified) return name;
-  }
-  return null;
-}
 
 /** Expression text that calls softplus from a file, using its own imports. */
 function softplusCall(sem: Semantics, at: SyntaxNode, arg: string): string | null {
-  const functional = localNameFor(sem, at, 'torch.nn.functional');
+  const functional = sem.moduleAlias(at, 'torch.nn.functional');
   if (functional) return `${functional}.softplus(${arg})`;
-  const torch = localNameFor(sem, at, 'torch');
+  const torch = sem.moduleAlias(at, 'torch');
   if (torch) return `${torch}.nn.functional.softplus(${arg})`;
-  const direct = localNameFor(sem, at, 'torch.nn.functional.softplus');
+  const direct = sem.moduleAlias(at, 'torch.nn.functional.softplus');
   if (direct) return `${direct}(${arg})`;
   return null;
 }
@@ -601,7 +584,7 @@ function fixesFor(context: RuleContext, source: TrainableSource): Fix[] {
     return edits;
   };
 
-  const torchName = localNameFor(sem, init, 'torch');
+  const torchName = sem.moduleAlias(init, 'torch');
   const logEdits = build(
     logName,
     Math.log,

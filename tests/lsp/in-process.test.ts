@@ -18,6 +18,7 @@ import { allRules, type RegisteredRule } from '../../rules/index';
 import { defineRule } from '../../server/src/engine/api';
 import { NoisewiseServer } from '../../server/src/lsp/server';
 import { editorCapabilities, uriOf } from './lsp-client';
+import { unconstrainedStdModule } from '../helpers/snippets';
 
 // Files whose path contains this marker make checkFile itself throw (an engine failure outside any rule).
 const ENGINE_FAILURE_MARKER = 'engine-failure';
@@ -54,20 +55,7 @@ const crashingRule: RegisteredRule = {
   doc: '# crash-test: A rule that throws on every call, registered only by this test\n',
 };
 
-const FLAGGED = [
-  'import torch',
-  'from torch import nn',
-  '',
-  '',
-  'class GaugeLayer(nn.Module):',
-  '    def __init__(self):',
-  '        super().__init__()',
-  '        self.sigma = nn.Parameter(torch.full((6,), 0.2))',
-  '',
-  '    def forward(self, x):',
-  '        return x + self.sigma * torch.randn_like(x)',
-  '',
-].join('\n');
+const FLAGGED = unconstrainedStdModule('GaugeLayer');
 
 describe('the server in-process over paired streams', () => {
   let client: ProtocolConnection;

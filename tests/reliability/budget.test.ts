@@ -15,20 +15,10 @@ import { Workspace } from '../../server/src/semantic/workspace';
 import { BIN, requireBundle } from '../helpers/cli-run';
 import { startSession, tempWorkspace, uriOf } from '../lsp/lsp-client';
 import { recordCount } from './fixtures';
+import { unconstrainedStdModule } from '../helpers/snippets';
 
 const FLAGGED = [
-  'import torch',
-  'from torch import nn',
-  '',
-  '',
-  'class GaugeLayer(nn.Module):',
-  '    def __init__(self):',
-  '        super().__init__()',
-  '        self.sigma = nn.Parameter(torch.full((6,), 0.2))',
-  '',
-  '    def forward(self, x):',
-  '        return x + self.sigma * torch.randn_like(x)',
-  '',
+  unconstrainedStdModule('GaugeLayer'),
   'def step(model, x):',
   '    return model(x).sum()',
   '',

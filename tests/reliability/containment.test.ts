@@ -5,6 +5,7 @@ import * as path from 'node:path';
 import { describe, expect, it, vi } from 'vitest';
 import { checkSources } from '../../server/src/engine/check';
 import { VIRTUAL_ROOT } from './engine-checks';
+import { unconstrainedStdModule } from '../helpers/snippets';
 
 const MARKER = 'MODEL_BREAKS_HERE';
 
@@ -20,20 +21,7 @@ vi.mock('../../server/src/semantic/module', async (importOriginal) => {
   return { ...original, ModuleAnalysis: FailingModuleAnalysis };
 });
 
-const LAYER = [
-  'import torch',
-  'from torch import nn',
-  '',
-  '',
-  'class GaugeLayer(nn.Module):',
-  '    def __init__(self):',
-  '        super().__init__()',
-  '        self.sigma = nn.Parameter(torch.full((6,), 0.2))',
-  '',
-  '    def forward(self, x):',
-  '        return x + self.sigma * torch.randn_like(x)',
-  '',
-].join('\n');
+const LAYER = unconstrainedStdModule('GaugeLayer');
 
 describe('a failure while building one file\'s model', () => {
   it('is contained to that file; the file importing it and the others are checked as usual', async () => {

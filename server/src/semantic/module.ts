@@ -616,6 +616,17 @@ function collectReturns(fnNode: SyntaxNode, out: SyntaxNode[]): void {
 }
 
 /** Strips parentheses around an expression. */
+/** The name an expression is assigned to (`w` in `w = …`, `weight` in `self.weight = …`), or null. */
+export function assignedName(node: SyntaxNode): string | null {
+  const parent = node.parent;
+  if (parent?.type === 'assignment' && node.field === 'right') {
+    const left = parent.child('left');
+    if (left?.type === 'identifier') return left.text;
+    if (left?.type === 'attribute') return left.child('attribute')?.text ?? null;
+  }
+  return null;
+}
+
 export function unwrapParens(node: SyntaxNode): SyntaxNode {
   let n = node;
   while (n.type === 'parenthesized_expression' && n.namedChildren.length === 1) n = n.namedChildren[0]!;

@@ -375,6 +375,18 @@ export class Semantics {
     return out;
   }
 
+  /**
+   * The module-level name the file of `at` binds to a library module or object by a plain import (`F` for
+   * `torch.nn.functional` after `import torch.nn.functional as F`), for fixes that write code using it; null when
+   * the file has none (or binds the name more than once).
+   */
+  moduleAlias(at: SyntaxNode, qualified: string): string | null {
+    for (const [name, bindings] of this.moduleOf(at).moduleScope.bindings) {
+      if (bindings.length === 1 && bindings[0]!.kind === 'import' && bindings[0]!.qualifiedName === qualified) return name;
+    }
+    return null;
+  }
+
   /** The calls in a workspace file whose callee's last name is `name` (`f(…)`, `obj.f(…)`), from a per-file index. */
   callsNamed(absPath: string, name: string): SyntaxNode[] {
     return this.byLastName('calls-by-name', absPath, name, (node) => {

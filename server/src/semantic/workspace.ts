@@ -233,32 +233,9 @@ export class Workspace {
     }
   }
 
-  /**
-   * The files whose summaries may depend on a file: it and its importers, transitively, as far as import lists are
-   * known (a file never analysed has none, and no summary either). Empty when no summary exists.
-   */
+  /** The files whose summaries may depend on a file (it and its importers, transitively); none while none exist. */
   private summaryDependents(absPath: string): Set<string> {
-    const out = new Set<string>();
-    if (this.summaries.size === 0) return out;
-    out.add(absPath);
-    const byTarget = new Map<string, string[]>();
-    for (const file of this.files.values()) {
-      if (!file.importedModules) continue;
-      for (const target of this.importsOf(file.absPath)) {
-        const list = byTarget.get(target);
-        if (list) list.push(file.absPath);
-        else byTarget.set(target, [file.absPath]);
-      }
-    }
-    const queue = [absPath];
-    while (queue.length > 0) {
-      for (const importer of byTarget.get(queue.pop()!) ?? []) {
-        if (out.has(importer)) continue;
-        out.add(importer);
-        queue.push(importer);
-      }
-    }
-    return out;
+    return this.summaries.size === 0 ? new Set() : this.dependentsOf(absPath);
   }
 
   /** The analysis a syntax node belongs to. */
