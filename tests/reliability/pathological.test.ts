@@ -240,7 +240,15 @@ describe('files the user may not read', () => {
     return;
   }
   let dir: string;
+  /** A copy of the built program the unprivileged user can reach (the checkout may sit in a folder only root may enter). */
+  let program: string;
+  let bin: string;
   beforeAll(() => {
+    program = fs.realpathSync(fs.mkdtempSync(path.join(os.tmpdir(), 'noisewise-perm-program-')));
+    fs.chmodSync(program, 0o755);
+    fs.cpSync(path.join(path.dirname(BIN), '..', 'dist'), path.join(program, 'dist'), { recursive: true });
+    fs.cpSync(path.dirname(BIN), path.join(program, 'bin'), { recursive: true });
+    bin = path.join(program, 'bin', path.basename(BIN));
     dir = fs.realpathSync(fs.mkdtempSync(path.join(os.tmpdir(), 'noisewise-perm-')));
     fs.chmodSync(dir, 0o755);
     fs.writeFileSync(path.join(dir, 'good.py'), GOOD);
@@ -253,10 +261,11 @@ describe('files the user may not read', () => {
   afterAll(() => {
     fs.chmodSync(path.join(dir, 'locked'), 0o755);
     fs.rmSync(dir, { recursive: true, force: true });
+    fs.rmSync(program, { recursive: true, force: true });
   });
 
   const run = (args: string[]) => {
-    const [command, ...rest] = [...prefix, process.execPath, BIN, ...args];
+    const [command, ...rest] = [...prefix, process.execPath, bin, ...args];
     const result = spawnSync(command!, rest, { cwd: dir, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1' }, timeout: 60_000 });
     return { code: result.status, stdout: result.stdout, stderr: result.stderr };
   };
@@ -275,7 +284,7 @@ describe('files the user may not read', () => {
   });
 
   it('logs the unreadable file and folder while indexing and serves the rest (server, as an unprivileged user)', async () => {
-    const [command, ...rest] = [...prefix, process.execPath, BIN, 'server', '--stdio'];
+    const [command, ...rest] = [...prefix, process.execPath, bin, 'server', '--stdio'];
     const child: ChildProcess = spawn(command!, rest, { cwd: dir, stdio: ['pipe', 'pipe', 'pipe'], env: { ...process.env, HOME: dir, XDG_CACHE_HOME: path.join(os.tmpdir(), 'noisewise-perm-cache') } });
     const session = new LspSession(child, { root: dir });
     try {
