@@ -4,6 +4,9 @@ import { describe, expect, it } from 'vitest';
 import { describeDims, type Dims, evaluateDims, ONE, over, pyroPlateScale, readLiteralAs, type Reduction, relativeKlWeight, type Scale, symbol, times } from '../rules/elbo-scale-mismatch/scale';
 import { judge } from '../rules/elbo-scale-mismatch/torch-loss';
 import type { Finding } from '../server/src/engine/finding';
+import * as fs from 'node:fs';
+import * as path from 'node:path';
+import { checkSources } from '../server/src/engine/check';
 import { checkTexts } from './helpers/engine';
 
 const N = symbol({ symbol: 'N', text: 'N', value: null, strong: true });
@@ -205,3 +208,53 @@ model.fit(x_train, y_train, batch_size=128)
     expect(f!.fixes[0]!.edits[0]!.newText).toBe(', kernel_divergence_fn=lambda q, p, _: tfp.distributions.kl_divergence(q, p) / NUM_TRAIN_EXAMPLES');
   });
 });
+
+describe('elbo-scale-mismatch with a configuration per folder', () => {
+  // a/ names `n_gauges` a dataset size in its configuration; shared/ (where the loss is written) does not. The
+  // combination `mean(NLL) + KL * n_gauges` lies in shared/layers.py and is judged with shared/'s settings, so it is
+  // quiet there, whichever file was checked first. Until the rule kept its memo tables per set of names, the scales
+  // worked out while checking a/train.py (first in order) were reused for shared/layers.py.
+  const layer = fs.readFileSync(path.join(__dirname, '..', 'rules', 'elbo-scale-mismatch', 'cases', 'flagged-mean-forms.py'), 'utf8').split('\n').slice(1, 27).join('\n');
+  const files: Record<string, string> = {
+    'a/train.py': trainScript(),
+    'b/train.py': trainScript(),
+    'shared/layers.py': `${layer}\n\n\ndef objective(model, xb, yb, n_gauges):\n    return F.mse_loss(model(xb), yb) + model.kl() * n_gauges\n`,
+  };
+  const run = async (namesFor: (p: string) => string[]) => {
+    const root = path.resolve('/virtual-workspace');
+    const reports = await checkSources(
+      Object.entries(files).map(([p, text]) => ({ path: p, absPath: path.join(root, p), text })),
+      { workspaceRoot: root, settingsFor: (absPath) => ({ severity: {}, datasetSizeNames: namesFor(path.relative(root, absPath)) }), rules: { only: ['elbo-scale-mismatch'] } },
+    );
+    return Object.fromEntries(reports.map((r) => [r.path, r.findings.length]));
+  };
+  it('judges a shared loss with the settings of its own folder', async () => {
+    expect(await run((p) => (p.startsWith('a/') ? ['n_gauges'] : []))).toEqual({ 'a/train.py': 0, 'b/train.py': 0, 'shared/layers.py': 0 });
+  });
+  it('and flags it when its own folder names the dataset size', async () => {
+    expect(await run((p) => (p.startsWith('shared/') ? ['n_gauges'] : []))).toEqual({ 'a/train.py': 0, 'b/train.py': 0, 'shared/layers.py': 1 });
+  });
+});
+
+function trainScript(): string {
+  return `import sys
+
+import torch
+from torch.utils.data import DataLoader, TensorDataset
+
+from shared.layers import StageBayesLinear, objective
+
+rain = torch.randn(480, 24)
+stage = torch.randn(480, 1)
+gauge_loader = DataLoader(TensorDataset(rain, stage), batch_size=32, shuffle=True)
+n_gauges = int(sys.argv[1])
+model = StageBayesLinear(24, 1)
+optimizer = torch.optim.Adam(model.parameters(), lr=1e-2)
+
+for xb, yb in gauge_loader:
+    loss = objective(model, xb, yb, n_gauges)
+    optimizer.zero_grad()
+    loss.backward()
+    optimizer.step()
+`;
+}

@@ -81,17 +81,29 @@ const MAX_DEPTH = 14;
 /** The analysis state shared by the rule's parts while checking one file (memo tables live in the workspace). */
 export class Flow {
   private readonly datasetNames: Set<string>;
+  /** The dataset-size names as one string: memo tables are kept per value (see `memoTable`). */
+  private readonly settingsKey: string;
 
   constructor(
     readonly sem: Semantics,
     datasetSizeNames: readonly string[],
   ) {
     this.datasetNames = new Set(datasetSizeNames);
+    this.settingsKey = [...this.datasetNames].sort().join(',');
+  }
+
+  /**
+   * A workspace memo table of this rule. Answers may depend on the dataset-size names, which come from the
+   * configuration of the file being checked, and a memo table is shared by every file check: so each set of names
+   * gets its own tables (one set in a workspace with one configuration).
+   */
+  memoTable<K, V>(name: string): Map<K, V> {
+    return this.sem.workspace.memoTable<K, V>(`${name}\0${this.settingsKey}`);
   }
 
   /** Call sites of a workspace function anywhere in the files that import its file (or in the file itself). */
   callers(fn: FunctionInfo): { call: SyntaxNode; receiver: SyntaxNode | null; constructs: boolean }[] {
-    const memo = this.sem.workspace.memoTable<SyntaxNode, { call: SyntaxNode; receiver: SyntaxNode | null; constructs: boolean }[]>('elbo-scale-mismatch:callers');
+    const memo = this.memoTable<SyntaxNode, { call: SyntaxNode; receiver: SyntaxNode | null; constructs: boolean }[]>('elbo-scale-mismatch:callers');
     const cached = memo.get(fn.node);
     if (cached) return cached;
     const out: { call: SyntaxNode; receiver: SyntaxNode | null; constructs: boolean }[] = [];
@@ -114,7 +126,7 @@ export class Flow {
 
   /** The calls of a file, in source order, and indexed by the called name (the last part of a dotted callee). */
   callIndex(file: string): { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> } {
-    const memo = this.sem.workspace.memoTable<string, { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> }>('elbo-scale-mismatch:call-index');
+    const memo = this.memoTable<string, { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> }>('elbo-scale-mismatch:call-index');
     const cached = memo.get(file);
     if (cached) return cached;
     const index = { all: [] as SyntaxNode[], byName: new Map<string, SyntaxNode[]>() };
@@ -396,7 +408,7 @@ export class Flow {
 
   /** Right-hand sides of `name[...] = value` stores into the value bound by an assignment, in its scope. */
   private itemStores(b: Binding): SyntaxNode[] {
-    const memo = this.sem.workspace.memoTable<Binding, SyntaxNode[]>('elbo-scale-mismatch:item-stores');
+    const memo = this.memoTable<Binding, SyntaxNode[]>('elbo-scale-mismatch:item-stores');
     const cached = memo.get(b);
     if (cached) return cached;
     const out: SyntaxNode[] = [];
@@ -412,7 +424,7 @@ export class Flow {
    * large modules quadratic).
    */
   private itemStoresByName(scopeNode: SyntaxNode): Map<string, { target: SyntaxNode; right: SyntaxNode }[]> {
-    const memo = this.sem.workspace.memoTable<SyntaxNode, Map<string, { target: SyntaxNode; right: SyntaxNode }[]>>('elbo-scale-mismatch:item-stores-by-name');
+    const memo = this.memoTable<SyntaxNode, Map<string, { target: SyntaxNode; right: SyntaxNode }[]>>('elbo-scale-mismatch:item-stores-by-name');
     const cached = memo.get(scopeNode);
     if (cached) return cached;
     const byName = new Map<string, { target: SyntaxNode; right: SyntaxNode }[]>();
@@ -686,7 +698,7 @@ export class Flow {
     const unknown: TensorKind = { kind: 'unknown', loader: null };
     if (depth > MAX_DEPTH) return unknown;
     const node = unwrapParens(expr);
-    const memo = frame === null ? this.sem.workspace.memoTable<SyntaxNode, TensorKind>('elbo-scale-mismatch:tensor-kind') : null;
+    const memo = frame === null ? this.memoTable<SyntaxNode, TensorKind>('elbo-scale-mismatch:tensor-kind') : null;
     const cached = memo?.get(node);
     if (cached) return cached;
     memo?.set(node, unknown);
@@ -870,7 +882,7 @@ export class Flow {
   isFullArrayByUse(identifier: SyntaxNode, depth = 0): boolean {
     const bindings = this.sem.bindings(identifier);
     if (bindings.length === 0 || bindings.some((b) => b.kind === 'param' || b.kind === 'for' || b.kind === 'comprehension')) return false;
-    const memo = this.sem.workspace.memoTable<Binding, boolean>('elbo-scale-mismatch:full-array');
+    const memo = this.memoTable<Binding, boolean>('elbo-scale-mismatch:full-array');
     const b0 = bindings[0]!;
     if (memo.has(b0)) return memo.get(b0)!;
     memo.set(b0, false);
@@ -908,7 +920,7 @@ export class Flow {
 
   /** The identifiers of a scope's subtree by name, found in one walk per scope (a walk per binding made large modules quadratic). */
   private identifiersByName(scopeNode: SyntaxNode): Map<string, SyntaxNode[]> {
-    const memo = this.sem.workspace.memoTable<SyntaxNode, Map<string, SyntaxNode[]>>('elbo-scale-mismatch:identifiers-by-name');
+    const memo = this.memoTable<SyntaxNode, Map<string, SyntaxNode[]>>('elbo-scale-mismatch:identifiers-by-name');
     const cached = memo.get(scopeNode);
     if (cached) return cached;
     const byName = new Map<string, SyntaxNode[]>();
@@ -1090,7 +1102,7 @@ export class Flow {
   scaleOf(expr: SyntaxNode, frame: Frame | null, depth = 0): Scale {
     const node = unwrapParens(expr);
     if (depth > MAX_DEPTH) return OPAQUE;
-    const memo = frame === null ? this.sem.workspace.memoTable<SyntaxNode, Scale>('elbo-scale-mismatch:scale') : null;
+    const memo = frame === null ? this.memoTable<SyntaxNode, Scale>('elbo-scale-mismatch:scale') : null;
     const cached = memo?.get(node);
     if (cached) return cached;
     memo?.set(node, OPAQUE);

@@ -68,7 +68,7 @@ function visibleBindings(flow: Flow, at: SyntaxNode): { name: string; bindings: 
 
 /** An expression for N, K or B that can be written at a node (remembered per node, quantity and loader). */
 export function findInScope(flow: Flow, at: SyntaxNode, wanted: Wanted, loader: IterableInfo | null): ScopeExpression | null {
-  const memo = flow.sem.workspace.memoTable<SyntaxNode, Map<string, Map<SyntaxNode | null, ScopeExpression | null>>>('elbo-scale-mismatch:in-scope');
+  const memo = flow.memoTable<SyntaxNode, Map<string, Map<SyntaxNode | null, ScopeExpression | null>>>('elbo-scale-mismatch:in-scope');
   let byWanted = memo.get(at);
   if (!byWanted) memo.set(at, (byWanted = new Map()));
   let byLoader = byWanted.get(wanted);

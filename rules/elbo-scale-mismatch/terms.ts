@@ -117,7 +117,7 @@ export class Expander {
   expand(expr: SyntaxNode, frame: Frame | null, depth = 0): Expansion {
     const node = unwrapParens(expr);
     if (depth > MAX_DEPTH) return EMPTY;
-    const memo = frame === null ? (this.scratch ?? this.sem.workspace.memoTable<SyntaxNode, Expansion>('elbo-scale-mismatch:expand')) : null;
+    const memo = frame === null ? (this.scratch ?? this.flow.memoTable<SyntaxNode, Expansion>('elbo-scale-mismatch:expand')) : null;
     const cached = memo?.get(node);
     if (cached) return cached;
     memo?.set(node, EMPTY);
@@ -475,7 +475,7 @@ export class Expander {
    */
   workspaceKlMember(name: string, at: SyntaxNode): boolean {
     const from = this.sem.workspace.analysisOfNode(at)?.file.absPath ?? this.sem.analysis.file.absPath;
-    const memo = this.sem.workspace.memoTable<string, boolean>('elbo-scale-mismatch:kl-members');
+    const memo = this.flow.memoTable<string, boolean>('elbo-scale-mismatch:kl-members');
     const key = `${from}\u0000${name}`;
     if (memo.has(key)) return memo.get(key)!;
     memo.set(key, false);
@@ -487,7 +487,7 @@ export class Expander {
   /** True when a module class of one file has a KL-computing method or attribute of this name (looked up in the file's member index first). */
   private fileKlMember(file: string, name: string): boolean {
     if (!this.moduleMemberNames(file).has(name)) return false;
-    const memo = this.sem.workspace.memoTable<string, boolean>('elbo-scale-mismatch:file-kl-members');
+    const memo = this.flow.memoTable<string, boolean>('elbo-scale-mismatch:file-kl-members');
     const key = `${file}\u0000${name}`;
     if (memo.has(key)) return memo.get(key)!;
     memo.set(key, false);
@@ -513,7 +513,7 @@ export class Expander {
 
   /** Names of the methods and attributes of a file's classes (computed once per file). */
   private moduleMemberNames(file: string): Set<string> {
-    const memo = this.sem.workspace.memoTable<string, Set<string>>('elbo-scale-mismatch:member-names');
+    const memo = this.flow.memoTable<string, Set<string>>('elbo-scale-mismatch:member-names');
     const cached = memo.get(file);
     if (cached) return cached;
     const names = new Set<string>();

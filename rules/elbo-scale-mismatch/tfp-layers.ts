@@ -186,7 +186,7 @@ function modelsOf(flow: Flow, layer: SyntaxNode): (SyntaxNode | ClassInfo)[] {
 
 /** The `Sequential(...)` and functional `Model(...)` constructions of a file (also under aliases), found once per file. */
 function kerasModelCalls(flow: Flow, file: string): { sequential: SyntaxNode[]; functional: SyntaxNode[] } {
-  const memo = flow.sem.workspace.memoTable<string, { sequential: SyntaxNode[]; functional: SyntaxNode[] }>('elbo-scale-mismatch:keras-models');
+  const memo = flow.memoTable<string, { sequential: SyntaxNode[]; functional: SyntaxNode[] }>('elbo-scale-mismatch:keras-models');
   const cached = memo.get(file);
   if (cached) return cached;
   const out = { sequential: [] as SyntaxNode[], functional: [] as SyntaxNode[] };

@@ -66,7 +66,7 @@ export function judge(options: { relative: Scale; regime: Regime; n: number | nu
 /** Expressions that reach an optimiser: `.backward()` receivers, autograd targets, Lightning training_step returns. */
 function optimisedRoots(flow: Flow, absPath: string): SyntaxNode[] {
   const sem = flow.sem;
-  const memo = sem.workspace.memoTable<string, SyntaxNode[]>('elbo-scale-mismatch:roots');
+  const memo = flow.memoTable<string, SyntaxNode[]>('elbo-scale-mismatch:roots');
   const cached = memo.get(absPath);
   if (cached) return cached;
   const out: SyntaxNode[] = [];
