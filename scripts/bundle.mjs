@@ -1,5 +1,6 @@
 // Builds the bundles with esbuild: server/dist/noisewise.js (CLI + language server) and, when present,
-// client/dist/extension.js with a copy of the server bundle as client/dist/server.js; puts both wasm files and the
+// client/dist/extension.js with a copy of the server bundle as client/dist/server-bundle.js (started by
+// client/dist/server.js, a copy of server/bin/run-bundle.js); puts both wasm files and the
 // rule pages (rules/<id>.md, rendered from the rules) beside each bundle, and records the wasm files' provenance.
 // Run directly (`node scripts/bundle.mjs [--production]`) or import `buildBundles` to build into other folders.
 import * as esbuild from 'esbuild';
@@ -12,12 +13,18 @@ import { fileURLToPath } from 'node:url';
 export const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 
 // NOTE: web-tree-sitter's ESM build reads import.meta.url; in a CommonJS bundle it must come from __filename.
-const importMetaBanner = 'var __noisewise_import_meta_url = require("url").pathToFileURL(__filename).href;';
+const importMetaBanner = 'var __noisewise_import_meta_url = require("url").pathToFileURL(__filename).href; var __noisewise_node_module = require("module");';
 
 /** Appends an export of web-tree-sitter's module-level WASM binding (`C`) and transfer buffer. */
 export function exposeTreeSitterInternals(source) {
   if (!/^var C;$/m.test(source) || !/^var TRANSFER_BUFFER;$/m.test(source)) throw new Error('web-tree-sitter changed: update the internals patch in scripts/bundle.mjs');
-  return `${source}\nexport function __noisewiseInternals() { return { C, TRANSFER_BUFFER }; }\n`;
+  // The one dynamic import (Node's `module`, for createRequire) reads the module the banner required instead: a script
+  // loaded from V8's code cache (see scripts/launcher.cjs) cannot run dynamic imports, and the bundle is CommonJS
+  // anyway. (A plain `require` would not do: the function declares its own `var require`.)
+  const dynamicImport = 'const { createRequire } = await import("module");';
+  if (!source.includes(dynamicImport)) throw new Error('web-tree-sitter changed: update the dynamic-import patch in scripts/bundle.mjs');
+  const patched = source.replace(dynamicImport, 'const { createRequire } = __noisewise_node_module;');
+  return `${patched}\nexport function __noisewiseInternals() { return { C, TRANSFER_BUFFER }; }\n`;
 }
 
 function commonOptions(production) {
@@ -97,7 +104,7 @@ async function writeRulePages(dir, common) {
 
 /**
  * Builds the server bundle into `serverOut` and, when client/src/extension.ts exists, the extension into `clientOut`
- * (with the server bundle copied in as server.js). Each output folder gets both wasm files and the rule pages.
+ * (with the server bundle copied in as server-bundle.js, started by server.js). Each output folder gets both wasm files and the rule pages.
  */
 export async function buildBundles({ production = false, serverOut = path.join(root, 'server', 'dist'), clientOut = path.join(root, 'client', 'dist') } = {}) {
   const common = commonOptions(production);
@@ -123,9 +130,14 @@ export async function buildBundles({ production = false, serverOut = path.join(r
   await esbuild.build({ ...common, entryPoints: [clientEntry], outfile: path.join(clientOut, 'extension.js'), external: ['vscode'] });
   if (production) fs.rmSync(path.join(clientOut, 'extension.js.map'), { force: true });
   for (const file of ['noisewise.js', ...wasmFiles.map(([, f]) => f)]) {
-    fs.copyFileSync(path.join(serverOut, file), path.join(clientOut, file === 'noisewise.js' ? 'server.js' : file));
+    fs.copyFileSync(path.join(serverOut, file), path.join(clientOut, file === 'noisewise.js' ? 'server-bundle.js' : file));
   }
-  // server.js points at its source map by the server bundle's name.
+  // The extension starts dist/server.js: the bundle runner of the CLI (server/bin/run-bundle.js, V8 settings and code
+  // cache), run on the copied bundle.
+  const runner = fs.readFileSync(path.join(root, 'server', 'bin', 'run-bundle.js'), 'utf8');
+  fs.writeFileSync(path.join(clientOut, 'server.js'), `${runner}\nmodule.exports.runBundle(require('node:path').join(__dirname, 'server-bundle.js'));\n`);
+  fs.rmSync(path.join(clientOut, 'server-bundle.js.v8cache'), { force: true });
+  // server-bundle.js points at its source map by the server bundle's name.
   if (!production) fs.copyFileSync(path.join(serverOut, 'noisewise.js.map'), path.join(clientOut, 'noisewise.js.map'));
   fs.rmSync(path.join(clientOut, 'rules'), { recursive: true, force: true });
   fs.cpSync(path.join(serverOut, 'rules'), path.join(clientOut, 'rules'), { recursive: true });

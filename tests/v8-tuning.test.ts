@@ -24,6 +24,11 @@ describe('V8 compiler budgets', () => {
     expect(engine).toBeGreaterThan(tuning);
   });
 
+  it('are the same list in the bundle runner, which sets them before compiling (a code cache is tied to the flags)', () => {
+    const runner = require(path.join(root, 'server/bin/run-bundle.js')) as { V8_TUNING_FLAGS: string[] };
+    expect(runner.V8_TUNING_FLAGS).toEqual(V8_TUNING_FLAGS);
+  });
+
   it('are flags this V8 knows, and NOISEWISE_V8_DEFAULTS=1 keeps the defaults', () => {
     // V8 ignores an unknown flag silently through setFlagsFromString; `node --v8-options` lists the real ones.
     const known = execFileSync(process.execPath, ['--v8-options'], { encoding: 'utf8' });

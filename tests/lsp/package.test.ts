@@ -66,6 +66,7 @@ describe('the .vsix', () => {
         'extension/readme.md',
         'extension/dist/extension.js',
         'extension/dist/server.js',
+        'extension/dist/server-bundle.js',
         'extension/dist/tree-sitter-python.wasm',
         'extension/dist/web-tree-sitter.wasm',
         ...pages,

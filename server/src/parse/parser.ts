@@ -37,7 +37,9 @@ export function initParser(): Promise<Language> {
     ready = (async () => {
       const runtimeWasm = locateWasm('web-tree-sitter.wasm');
       await Parser.init({ locateFile: () => runtimeWasm });
-      language = await Language.load(locateWasm('tree-sitter-python.wasm'));
+      // The grammar's bytes, not its path: given a path, web-tree-sitter reads it through a dynamic import, which a
+      // bundle loaded from V8's code cache cannot run (see scripts/launcher.cjs).
+      language = await Language.load(new Uint8Array(fs.readFileSync(locateWasm('tree-sitter-python.wasm'))));
       return language;
     })();
   }
