@@ -83,6 +83,7 @@ export class Flow {
   private readonly datasetNames: Set<string>;
   /** The dataset-size names as one string: memo tables are kept per value (see `memoTable`). */
   private readonly settingsKey: string;
+  private readonly tableNames = new Map<string, string>();
 
   constructor(
     readonly sem: Semantics,
@@ -98,7 +99,13 @@ export class Flow {
    * gets its own tables (one set in a workspace with one configuration).
    */
   memoTable<K, V>(name: string): Map<K, V> {
-    return this.sem.workspace.memoTable<K, V>(`${name}\0${this.settingsKey}`);
+    // The composed table names are kept, so that no string is built (and hashed) on every memo access.
+    let full = this.tableNames.get(name);
+    if (full === undefined) {
+      full = `${name}\0${this.settingsKey}`;
+      this.tableNames.set(name, full);
+    }
+    return this.sem.workspace.memoTable<K, V>(full);
   }
 
   /** Call sites of a workspace function anywhere in the files that import its file (or in the file itself). */

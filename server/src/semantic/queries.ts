@@ -186,12 +186,13 @@ export class Semantics {
 
   /** What a call calls. */
   callee(call: SyntaxNode): Callee {
-    const fn = call.child('function');
-    if (!fn) return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
     this.budget?.check();
+    // Asked for every call by several rules: the memo comes first.
     const memo = this.workspace.memoTable<SyntaxNode, Callee>('callee');
     const cached = memo.get(call);
     if (cached) return cached;
+    const fn = call.child('function');
+    if (!fn) return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
     const result = this.nested(null, () => this.calleeUncached(call, fn));
     // An answer cut short by the nesting bound is not remembered: asked again from shallower, it may be complete.
     if (result === null) return { qualifiedName: null, method: null, receiver: null, symbol: null, boundMethod: false };
