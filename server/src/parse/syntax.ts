@@ -185,8 +185,7 @@ export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInte
   const { C, TRANSFER_BUFFER } = internals;
   const file = new SyntaxFile(text);
   const language = tree.language as unknown as { types: string[]; fields: (string | null)[]; 0: number };
-  const types = language.types;
-  const fields = language.fields;
+  const { types, fields } = internalizedNames(language);
   const treeAddress = (tree as unknown as { 0: number })[0];
   const hasError = tree.rootNode.hasError;
   const cursor = tree.walk() as unknown as { handles: number[]; delete(): void };
@@ -263,11 +262,35 @@ function namedTable(C: WasmInternals['C'], languageAddress: number, count: numbe
   return table;
 }
 
+/**
+ * The grammar's node type and field names as internalized strings, once per language. web-tree-sitter builds them
+ * from C strings, and V8 compares such strings by their characters; the engine compares node types and fields with
+ * literals (`node.type === 'call'`, `child('function')`) millions of times per check, and two internalized strings
+ * compare by address.
+ */
+function internalizedNames(language: { types: readonly string[]; fields: readonly (string | null)[] }): { types: string[]; fields: (string | null)[] } {
+  let names = internalizedByLanguage.get(language);
+  if (!names) {
+    names = { types: language.types.map(internalize), fields: language.fields.map((f) => (f === null ? null : internalize(f))) };
+    internalizedByLanguage.set(language, names);
+  }
+  return names;
+}
+
+const internalizedByLanguage = new WeakMap<object, { types: string[]; fields: (string | null)[] }>();
+
+/** The same string, internalized: V8 interns the keys of an object's properties. */
+function internalize(name: string): string {
+  const holder: Record<string, true> = {};
+  holder[name] = true;
+  return Object.keys(holder)[0] ?? name;
+}
+
 /** Copies a tree with the public TreeCursor API (used when the WASM internals are not exposed). */
 export function toSyntaxFileWithCursor(tree: Tree, text: string): SyntaxFile {
   const file = new SyntaxFile(text);
   const language = tree.language;
-  const types = language.types;
+  const { types, fields } = internalizedNames(language);
   const cursor = tree.walk();
   // Read once: only a tree with errors can hold MISSING punctuation, which the walk below must still record.
   const hasError = tree.rootNode.hasError;
@@ -287,7 +310,8 @@ export function toSyntaxFileWithCursor(tree: Tree, text: string): SyntaxFile {
       if (named || (parent !== null && OPERATOR_PARENTS.has(parent.type))) {
         const type = types[typeId] ?? 'ERROR';
         if (named || (type !== '(' && type !== ')')) {
-          const field = cursor.currentFieldName;
+          const fieldId = cursor.currentFieldId;
+          const field = fieldId ? (fields[fieldId] ?? null) : null;
           const start = cursor.startIndex;
           const end = cursor.endIndex;
           const missing: boolean = start === end && parent !== null && cursor.nodeIsMissing;
