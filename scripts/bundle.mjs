@@ -13,13 +13,13 @@ import { fileURLToPath } from 'node:url';
 export const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 
 // NOTE: web-tree-sitter's ESM build reads import.meta.url; in a CommonJS bundle it must come from __filename.
-const importMetaBanner = 'var __noisewise_import_meta_url = require("url").pathToFileURL(__filename).href; var __noisewise_node_module = require("module");';
+export const importMetaBanner = 'var __noisewise_import_meta_url = require("url").pathToFileURL(__filename).href; var __noisewise_node_module = require("module");';
 
 /** Appends an export of web-tree-sitter's module-level WASM binding (`C`) and transfer buffer. */
 export function exposeTreeSitterInternals(source) {
   if (!/^var C;$/m.test(source) || !/^var TRANSFER_BUFFER;$/m.test(source)) throw new Error('web-tree-sitter changed: update the internals patch in scripts/bundle.mjs');
   // The one dynamic import (Node's `module`, for createRequire) reads the module the banner required instead: a script
-  // loaded from V8's code cache (see scripts/launcher.cjs) cannot run dynamic imports, and the bundle is CommonJS
+  // loaded from V8's code cache (see server/bin/run-bundle.js) cannot run dynamic imports, and the bundle is CommonJS
   // anyway. (A plain `require` would not do: the function declares its own `var require`.)
   const dynamicImport = 'const { createRequire } = await import("module");';
   if (!source.includes(dynamicImport)) throw new Error('web-tree-sitter changed: update the dynamic-import patch in scripts/bundle.mjs');

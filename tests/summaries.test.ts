@@ -48,7 +48,7 @@ describe('per-file summaries', () => {
     prepareSummaries(small.workspace, paths, summaryKinds(), 30_000);
     expect(noiseRateFindings(small, 'lab/layers.py')).toBe(0);
     expect(noiseRateFindings(large, 'lab/layers.py')).toBe(0);
-    // The summaries were computed once, before the check: no more than the cache limit of analyses is held after it.
+    // Every file's summary is still held after the cache is trimmed back to one analysis.
     small.workspace.trimCache();
     expect(small.workspace.exportSummaries(paths).length).toBe(paths.length);
   });

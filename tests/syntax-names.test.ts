@@ -8,7 +8,7 @@ import * as path from 'node:path';
 import * as esbuild from 'esbuild';
 import { describe, expect, it } from 'vitest';
 // @ts-expect-error: a plain ES module without type declarations
-import { exposeTreeSitterInternals } from '../scripts/bundle.mjs';
+import { exposeTreeSitterInternals, importMetaBanner } from '../scripts/bundle.mjs';
 
 const REPO = path.resolve(__dirname, '..');
 
@@ -49,8 +49,9 @@ main();
         format: 'cjs',
         logLevel: 'error',
         nodePaths: [path.join(REPO, 'node_modules')],
-        define: { 'import.meta.url': '__probe_url' },
-        banner: { js: 'var __probe_url = require("url").pathToFileURL(__filename).href; var __noisewise_node_module = require("module");' },
+        // The bundle's own banner and define (import.meta.url and the patched dynamic import read what it sets).
+        define: { 'import.meta.url': '__noisewise_import_meta_url' },
+        banner: { js: importMetaBanner as string },
         plugins: [{ name: 'internals', setup: (b) => b.onLoad({ filter: /web-tree-sitter[\\/]web-tree-sitter\.js$/ }, (a) => ({ contents: exposeTreeSitterInternals(fs.readFileSync(a.path, 'utf8')), loader: 'js' })) }],
       });
       for (const wasm of ['web-tree-sitter.wasm', 'tree-sitter-python.wasm']) fs.copyFileSync(path.join(REPO, 'server', 'dist', wasm), path.join(dir, wasm));

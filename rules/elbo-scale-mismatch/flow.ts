@@ -121,35 +121,13 @@ export class Flow {
     const names = fn.name === '__init__' && fn.owner ? [...new Set([...this.sem.subclassesOf(fn.owner).map((c) => c.name), '__init__'])] : [fn.name];
     const owner = this.sem.workspace.analysisOfNode(fn.node) ?? this.sem.analysis;
     for (const file of [...this.sem.workspace.dependentsOf(owner.file.absPath)].sort()) {
-      const index = this.callIndex(file);
-      const candidates = isCallableMethod(fn) ? index.all : names.flatMap((name) => index.byName.get(name) ?? []);
+      const candidates = isCallableMethod(fn) ? this.sem.callsIn(file) : names.flatMap((name) => this.sem.callsNamed(file, name));
       for (const node of candidates) {
         const resolved = this.resolveCall(node, null);
         if (resolved?.fn === fn) out.push({ call: node, receiver: resolved.receiver, constructs: !!resolved.constructs });
       }
     }
     return out;
-  }
-
-  /** The calls of a file, in source order, and indexed by the called name (the last part of a dotted callee). */
-  callIndex(file: string): { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> } {
-    const memo = this.memoTable<string, { all: SyntaxNode[]; byName: Map<string, SyntaxNode[]> }>('elbo-scale-mismatch:call-index');
-    const cached = memo.get(file);
-    if (cached) return cached;
-    const index = { all: [] as SyntaxNode[], byName: new Map<string, SyntaxNode[]>() };
-    memo.set(file, index);
-    for (const node of this.sem.workspace.analysis(file)?.syntax.nodes ?? []) {
-      if (node.type !== 'call') continue;
-      const fnNode = node.child('function');
-      if (!fnNode) continue;
-      index.all.push(node);
-      const last = fnNode.type === 'attribute' ? fnNode.child('attribute')?.text : fnNode.type === 'identifier' ? fnNode.text : undefined;
-      if (!last) continue;
-      const list = index.byName.get(last);
-      if (list) list.push(node);
-      else index.byName.set(last, [node]);
-    }
-    return index;
   }
 
   /**
@@ -435,7 +413,7 @@ export class Flow {
     const cached = memo.get(scopeNode);
     if (cached) return cached;
     const byName = new Map<string, { target: SyntaxNode; right: SyntaxNode }[]>();
-    for (const n of descendants(scopeNode)) {
+    for (const n of scopeNode.subtree()) {
       if (n.type !== 'assignment') continue;
       const left = n.child('left');
       const right = n.child('right');
@@ -831,7 +809,7 @@ export class Flow {
     if (node.type === 'identifier') ids.push(node);
     else if (node.type === 'slice') {
       const first = node.namedChildren[0];
-      if (first) for (const d of descendants(first)) if (d.type === 'identifier') ids.push(d);
+      if (first) for (const d of first.subtree()) if (d.type === 'identifier') ids.push(d);
     } else if (node.type === 'subscript') {
       // perm[i:i + bs] used as an index.
       const inner = node.childrenOf('subscript')[0];
@@ -931,7 +909,7 @@ export class Flow {
     const cached = memo.get(scopeNode);
     if (cached) return cached;
     const byName = new Map<string, SyntaxNode[]>();
-    for (const n of descendants(scopeNode)) {
+    for (const n of scopeNode.subtree()) {
       if (n.type !== 'identifier') continue;
       const list = byName.get(n.text);
       if (list) list.push(n);
@@ -1464,11 +1442,6 @@ function isStatic(fn: FunctionInfo): boolean {
 
 function isCallableMethod(fn: FunctionInfo): boolean {
   return !!fn.owner && (fn.name === 'forward' || fn.name === 'call' || fn.name === '__call__');
-}
-
-/** Every node of a subtree in preorder, the root first. */
-export function descendants(root: SyntaxNode): SyntaxNode[] {
-  return root.subtree();
 }
 
 /** Constructs that make the code inside them run conditionally or repeatedly (as the semantic model counts them). */

@@ -1,7 +1,7 @@
 // Pyro side of elbo-scale-mismatch: an observation `pyro.plate` sized from the minibatch (or unsized) in a model
 // that SVI is fed minibatches, with no `subsample_size` / `subsample` / `poutine.scale` restoring N/B (SOURCES.md §1.5).
 import { type Binding, type FunctionInfo, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
-import { type Arg, descendants, type Flow, type Frame, type IterableInfo } from './flow';
+import { type Arg, type Flow, type Frame, type IterableInfo } from './flow';
 
 const PLATES = ['pyro.plate', 'pyro.primitives.plate'];
 const SAMPLES = ['pyro.sample', 'pyro.primitives.sample'];
@@ -58,7 +58,7 @@ function observationContext(flow: Flow, call: SyntaxNode): { model: FunctionInfo
   const body = plateBody(call);
   if (!body) return null;
   let observed = false;
-  for (const n of descendants(body)) {
+  for (const n of body.subtree()) {
     if (n.type === 'function_definition' || n.type === 'lambda') continue;
     if (n.type === 'call' && sem.isCallTo(n, SAMPLES)) {
       const obs = sem.argument(n, 99, 'obs');
@@ -73,7 +73,7 @@ function observationContext(flow: Flow, call: SyntaxNode): { model: FunctionInfo
   if (model.decorators.some((d) => /scale/.test(d.text) && d.namedChildren.some((c) => (c.type === 'call' ? sem.isCallTo(c, SCALES) : sem.qualifiedName(c) !== null && SCALES.includes(sem.qualifiedName(c)!))))) return null;
   for (let n = call.parent; n && n !== model.node; n = n.parent) {
     if (n.type !== 'with_statement') continue;
-    for (const item of descendants(n.children.find((c) => c.type === 'with_clause') ?? n)) {
+    for (const item of (n.children.find((c) => c.type === 'with_clause') ?? n).subtree()) {
       if (item.type === 'call' && sem.isCallTo(item, SCALES)) return null;
     }
   }
@@ -158,22 +158,9 @@ function acceptsKeywords(model: FunctionInfo, step: SyntaxNode): boolean {
   return true;
 }
 
-/** The `<receiver>.step(...)` calls of a file (candidates for `svi.step`), found once per file. */
+/** The `<receiver>.step(...)` calls of a file (candidates for `svi.step`), from the file's call index. */
 function stepCalls(flow: Flow, file: string): SyntaxNode[] {
-  const sem = flow.sem;
-  const memo = sem.workspace.memoTable<string, SyntaxNode[]>('elbo-scale-mismatch:pyro-step-calls');
-  const cached = memo.get(file);
-  if (cached) return cached;
-  const out: SyntaxNode[] = [];
-  const analysis = sem.workspace.analysis(file);
-  for (const node of analysis?.syntax.nodes ?? []) {
-    if (node.type !== 'call') continue;
-    const fn = node.child('function');
-    if (fn?.type !== 'attribute' || fn.child('attribute')?.text !== 'step' || !fn.child('object')) continue;
-    out.push(node);
-  }
-  memo.set(file, out);
-  return out;
+  return flow.sem.callsNamed(file, 'step').filter((call) => call.child('function')!.type === 'attribute');
 }
 
 /**
@@ -288,7 +275,7 @@ export function batchTensorParameter(finding: PlateFinding): string | null {
   for (const p of params) {
     if (p.value) continue;
     if (!body) return p.name;
-    for (const n of descendants(body)) if (n.type === 'identifier' && n.text === p.name) return p.name;
+    for (const n of body.subtree()) if (n.type === 'identifier' && n.text === p.name) return p.name;
   }
   return null;
 }

@@ -2,7 +2,7 @@
 // their reduction, hand-written likelihoods, `-dist.log_prob(y)`), the KL-like term (kl_divergence, KL methods of
 // the model found through the workspace, closed-form Gaussian KLs, log q − log p estimates), and the factors on each.
 import { type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
-import { descendants, type Flow, type Frame, type Value } from './flow';
+import { type Flow, type Frame, type Value } from './flow';
 import { constant, ONE, over, type Scale, times } from './scale';
 
 /** One additive term of a loss. */
@@ -574,7 +574,7 @@ export class Expander {
     const seen = new Set<SyntaxNode>();
     while (queue.length) {
       const { node, frame: f, depth } = queue.shift()!;
-      for (const n of descendants(unwrapParens(node))) {
+      for (const n of unwrapParens(node).subtree()) {
         if (seen.has(n)) continue;
         seen.add(n);
         yield n;

@@ -128,8 +128,7 @@ function trainingOf(flow: Flow, layer: SyntaxNode): { compile: SyntaxNode; fit: 
   let fit: SyntaxNode | null = null;
   for (const file of [...sem.workspace.dependentsOf(owner.file.absPath)].sort()) {
     // The `.compile(...)` and `.fit(...)` calls of the file, from its call index (no walk of the whole file per layer).
-    const index = flow.callIndex(file);
-    for (const node of [...(index.byName.get('compile') ?? []), ...(index.byName.get('fit') ?? [])]) {
+    for (const node of [...sem.callsNamed(file, 'compile'), ...sem.callsNamed(file, 'fit')]) {
       const callee = sem.callee(node);
       if ((callee.method !== 'compile' && callee.method !== 'fit') || !callee.receiver) continue;
       if (!isModel(flow, callee.receiver, models)) continue;
@@ -190,7 +189,7 @@ function kerasModelCalls(flow: Flow, file: string): { sequential: SyntaxNode[]; 
   const cached = memo.get(file);
   if (cached) return cached;
   const out = { sequential: [] as SyntaxNode[], functional: [] as SyntaxNode[] };
-  for (const n of flow.callIndex(file).all) {
+  for (const n of flow.sem.callsIn(file)) {
     if (flow.sem.isCallTo(n, SEQUENTIAL)) out.sequential.push(n);
     else if (flow.sem.isCallTo(n, MODEL)) out.functional.push(n);
   }

@@ -941,7 +941,7 @@ function comprehensionLoop(comprehension: SyntaxNode, clause: SyntaxNode): Loop 
 
 function targetIdentifiers(target: SyntaxNode): SyntaxNode[] {
   if (target.type === 'identifier') return [target];
-  return [...descendants(target)].filter((n) => n.type === 'identifier');
+  return target.subtree().filter((n) => n.type === 'identifier');
 }
 
 /** Combines per-element samples into one sample set: every element must be a sample of one kind of prediction. */
@@ -1103,7 +1103,7 @@ function partKind(sem: Semantics, trace: ElementTrace, index: number): OutputKin
 /** True when an expression uses a loop target, directly or through names assigned inside the loop. */
 function dependsOnLoop(sem: Semantics, expr: SyntaxNode, loop: Loop, depth = 0): boolean {
   if (depth > MAX_DEPTH) return false;
-  for (const n of descendants(expr)) {
+  for (const n of expr.subtree()) {
     if (n.type !== 'identifier' || isAttributeName(n)) continue;
     if (loop.targets.some((t) => t.text === n.text)) {
       if (sem.bindings(n).some((b) => loop.targets.includes(b.node))) return true;
@@ -1696,7 +1696,6 @@ function callersOf(sem: Semantics, fn: FunctionInfo): SyntaxNode[] {
   return out;
 }
 
-
 /** Bindings made at an assignment target. */
 function bindingsAt(sem: Semantics, target: SyntaxNode): Binding[] {
   const module = sem.moduleOf(target);
@@ -2127,7 +2126,7 @@ function isPure(expr: SyntaxNode): boolean {
 function visibleAt(sem: Semantics, expr: SyntaxNode, at: SyntaxNode): boolean {
   if (expr.file !== at.file) return false;
   const module = sem.moduleOf(at);
-  for (const n of descendants(expr)) {
+  for (const n of expr.subtree()) {
     if (n.type !== 'identifier' || isAttributeName(n)) continue;
     const here = sem.bindings(n);
     const there = module.lookup(n.text, at);
@@ -2149,7 +2148,6 @@ function importInsertion(sem: Semantics, at: SyntaxNode): number | null {
   }
   return afterFuture;
 }
-
 
 /** True when a text is a primary expression (a name, call, attribute or subscript chain) that needs no parentheses. */
 function isPrimary(text: string): boolean {
@@ -2177,9 +2175,4 @@ function valueOrigins(sem: Semantics, expr: SyntaxNode): SyntaxNode[] {
   if (node.type !== 'identifier' && node.type !== 'attribute') return [node];
   const out = sem.origins(node).map((o) => o.node);
   return out.length ? out : [node];
-}
-
-/** Every node of a subtree in preorder, the root first. */
-function descendants(root: SyntaxNode): SyntaxNode[] {
-  return root.subtree();
 }

@@ -234,15 +234,12 @@ export class ModeFlow {
     if (cached) return cached;
     const index = new Map<SyntaxNode, SyntaxNode[]>();
     memo.set(absPath, index);
-    const analysis = sem.workspace.analysis(absPath);
-    if (!analysis) return index;
     const add = (target: SyntaxNode, call: SyntaxNode) => {
       const list = index.get(target);
       if (list) list.push(call);
       else index.set(target, [call]);
     };
-    for (const n of analysis.syntax.nodes) {
-      if (n.type !== 'call') continue;
+    for (const n of sem.callsIn(absPath)) {
       const callee = sem.callee(n);
       if (callee.symbol?.kind === 'function') add(callee.symbol.fn.node, n);
       else if (callee.symbol?.kind === 'class') {

@@ -462,7 +462,7 @@ function flaxDeterministic(sem: Semantics, call: SyntaxNode): { flag: SyntaxNode
   if (type?.kind !== 'instance' || !sem.isSubclassOf(type.cls, ['flax.linen.Module'])) return null;
   let dropout = false;
   for (const c of sem.ancestry(type.cls)) {
-    for (const n of descendants(c.node)) {
+    for (const n of c.node.subtree()) {
       if (n.type !== 'call') continue;
       const nc = sem.callee(n);
       if (nc.qualifiedName === 'flax.linen.Dropout') dropout = true;
@@ -507,7 +507,6 @@ function layersText(randomness: Randomness): string {
   if (parts.length <= 1) return parts[0] ?? 'dropout';
   return `${parts.slice(0, -1).join(', ')} and ${parts[parts.length - 1]}`;
 }
-
 
 /** A module-level name in the file of `at` that refers to a workspace class. */
 function localClassName(sem: Semantics, at: SyntaxNode, cls: ClassInfo): string | null {
@@ -616,9 +615,4 @@ function foldInFix(context: RuleContext, key: SyntaxNode, repetition: Repetition
 /** True when a `_` target is read in the loop (then it cannot be renamed safely). */
 function targetUsedElsewhere(sem: Semantics, target: SyntaxNode, repetition: Repetition): boolean {
   return bodyNodes(repetition.body).some((n) => n.type === 'identifier' && n.text === '_' && sem.bindings(n).some((b) => b.node === target));
-}
-
-/** Every node of a subtree in preorder (nested functions included). */
-function descendants(root: SyntaxNode): SyntaxNode[] {
-  return root.subtree();
 }

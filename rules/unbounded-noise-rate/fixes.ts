@@ -8,7 +8,6 @@ function floatLiteral(value: number): string {
   return /[.eE]/.test(text) || /inf|nan/i.test(text) ? text : `${text}.0`;
 }
 
-
 /** The two fixes: clamp the trainable tensor where it is read; the additive reparameterisation where the layer allows it. */
 export function fixesFor(context: RuleContext, site: NoiseSite, leaf: Leaf): Fix[] {
   const trainable = leaf.trainable;

@@ -307,45 +307,43 @@ function clampsIn(sem: Semantics, analysis: FileAnalysis): InPlaceClamp[] {
   if (cached) return cached;
   const out: InPlaceClamp[] = [];
   memo.set(analysis.file.absPath, out);
-  {
-    for (const n of analysis.syntax.nodes) {
-      let target: SyntaxNode | null = null;
-      let maxNode: SyntaxNode | null = null;
-      if (n.type === 'call') {
-        const fn = n.child('function');
-        const f = fn ? unwrapParens(fn) : null;
-        const method = f?.type === 'attribute' ? f.child('attribute')?.text : null;
-        if (!f || !method || !['clamp_', 'clip_', 'clamp_max_'].includes(method)) continue;
-        target = f.child('object');
-        maxNode = method === 'clamp_max_' ? sem.argument(n, 0, 'max') : sem.argument(n, 1, 'max');
-      } else if (n.type === 'assignment') {
-        const right = n.child('right');
-        const left = n.child('left');
-        if (!right || !left || unwrapParens(right).type !== 'call') continue;
-        const call = unwrapParens(right);
-        const callee = sem.callee(call);
-        if (callee.qualifiedName === 'torch.clamp' || callee.qualifiedName === 'torch.clip') maxNode = sem.argument(call, 2, 'max');
-        else if (callee.method === 'clamp' || callee.method === 'clip') maxNode = sem.argument(call, 1, 'max');
-        else continue;
-        target = left;
+  for (const n of analysis.syntax.nodes) {
+    let target: SyntaxNode | null = null;
+    let maxNode: SyntaxNode | null = null;
+    if (n.type === 'call') {
+      const fn = n.child('function');
+      const f = fn ? unwrapParens(fn) : null;
+      const method = f?.type === 'attribute' ? f.child('attribute')?.text : null;
+      if (!f || !method || !['clamp_', 'clip_', 'clamp_max_'].includes(method)) continue;
+      target = f.child('object');
+      maxNode = method === 'clamp_max_' ? sem.argument(n, 0, 'max') : sem.argument(n, 1, 'max');
+    } else if (n.type === 'assignment') {
+      const right = n.child('right');
+      const left = n.child('left');
+      if (!right || !left || unwrapParens(right).type !== 'call') continue;
+      const call = unwrapParens(right);
+      const callee = sem.callee(call);
+      if (callee.qualifiedName === 'torch.clamp' || callee.qualifiedName === 'torch.clip') maxNode = sem.argument(call, 2, 'max');
+      else if (callee.method === 'clamp' || callee.method === 'clip') maxNode = sem.argument(call, 1, 'max');
+      else continue;
+      target = left;
+    }
+    if (!target || !maxNode) continue;
+    const max = sem.fold(maxNode);
+    if (typeof max !== 'number') continue;
+    let t = unwrapParens(target);
+    if (t.type === 'attribute' && t.child('attribute')?.text === 'data' && t.child('object')) t = unwrapParens(t.child('object')!);
+    if (t.type === 'attribute') out.push({ attribute: t.child('attribute')?.text ?? null, nameTests: [], classes: receiverClasses(sem, t.child('object'), n), max, maxNode, node: n });
+    else if (t.type === 'identifier') {
+      const tests: string[] = [];
+      for (let a: SyntaxNode | null = n.parent; a; a = a.parent) {
+        if (a.type === 'function_definition') break;
+        if (a.type !== 'if_statement' && a.type !== 'elif_clause') continue;
+        const cond = a.child('condition');
+        if (!cond) continue;
+        for (const x of cond.subtree()) if (x.type === 'string_content') tests.push(x.text);
       }
-      if (!target || !maxNode) continue;
-      const max = sem.fold(maxNode);
-      if (typeof max !== 'number') continue;
-      let t = unwrapParens(target);
-      if (t.type === 'attribute' && t.child('attribute')?.text === 'data' && t.child('object')) t = unwrapParens(t.child('object')!);
-      if (t.type === 'attribute') out.push({ attribute: t.child('attribute')?.text ?? null, nameTests: [], classes: receiverClasses(sem, t.child('object'), n), max, maxNode, node: n });
-      else if (t.type === 'identifier') {
-        const tests: string[] = [];
-        for (let a: SyntaxNode | null = n.parent; a; a = a.parent) {
-          if (a.type === 'function_definition') break;
-          if (a.type !== 'if_statement' && a.type !== 'elif_clause') continue;
-          const cond = a.child('condition');
-          if (!cond) continue;
-          for (const x of [cond, ...descendantsList(cond)]) if (x.type === 'string_content') tests.push(x.text);
-        }
-        if (tests.length > 0) out.push({ attribute: null, nameTests: tests, classes: null, max, maxNode, node: n });
-      }
+      if (tests.length > 0) out.push({ attribute: null, nameTests: tests, classes: null, max, maxNode, node: n });
     }
   }
   return out;
@@ -353,7 +351,6 @@ function clampsIn(sem: Semantics, analysis: FileAnalysis): InPlaceClamp[] {
 
 /** What a file's in-place clamps bound, as plain data that outlives the file's syntax tree (see `fileSummary`). */
 interface ClampSummary {
-  start: number;
   attribute: string | null;
   nameTests: string[];
 }
@@ -361,7 +358,7 @@ interface ClampSummary {
 /** Each file's in-place clamps, by the names they bound. */
 export const IN_PLACE_CLAMPS = defineFileSummary<ClampSummary[]>({
   name: 'unbounded-noise-rate:in-place-clamps',
-  compute: (sem, analysis) => clampsIn(sem, analysis).map((c) => ({ start: c.node.start, attribute: c.attribute, nameTests: c.nameTests })),
+  compute: (sem, analysis) => clampsIn(sem, analysis).map((c) => ({ attribute: c.attribute, nameTests: c.nameTests })),
 });
 
 /**
@@ -427,10 +424,6 @@ function receiverClasses(sem: Semantics, receiver: SyntaxNode | null, at: Syntax
     return out.length ? out : null;
   }
   return null;
-}
-
-function descendantsList(root: SyntaxNode): SyntaxNode[] {
-  return [...descendants(root)];
 }
 
 /** A leaf whose trainable tensor is clamped in place elsewhere gets that clamp as its first step. */
@@ -692,7 +685,7 @@ function sameOperand(sem: Semantics, a: SyntaxNode, b: SyntaxNode): boolean {
   const x = unwrapParens(a);
   const y = unwrapParens(b);
   if (x.text.replace(/\s+/g, '') !== y.text.replace(/\s+/g, '')) return false;
-  const names = (n: SyntaxNode) => [...descendants(n)].filter((c) => c.type === 'identifier' && !(c.parent?.type === 'attribute' && c.field === 'attribute'));
+  const names = (n: SyntaxNode) => n.subtree().filter((c) => c.type === 'identifier' && !(c.parent?.type === 'attribute' && c.field === 'attribute'));
   const xs = names(x);
   const ys = names(y);
   if (xs.length !== ys.length) return false;
@@ -701,9 +694,4 @@ function sameOperand(sem: Semantics, a: SyntaxNode, b: SyntaxNode): boolean {
     const by = sem.bindings(ys[i]!);
     return bx.length === by.length && bx.every((bnd) => by.includes(bnd));
   });
-}
-
-/** Every node of a subtree in preorder, the root first. */
-export function descendants(root: SyntaxNode): SyntaxNode[] {
-  return root.subtree();
 }

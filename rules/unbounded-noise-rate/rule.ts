@@ -2,7 +2,7 @@
 // nothing bounding it at α ≤ 1, and the noise's std written as α itself where α is a variance.
 import { type ClassInfo, defineRule, type Figure, formatNumber, type FunctionInfo, type RuleContext, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
 import { dropRateOfAlpha, signFlipProbability } from './normal-cdf';
-import { applyOp, descendants, EXP, initialAlpha, IN_PLACE_CLAMPS, type Leaf, LOG, type NoiseSite, type Op, PASS_THROUGH_METHODS, type Quantity, SQRT, upperBoundOfAlpha, walk, withInPlaceBound } from './rate-walk';
+import { applyOp, EXP, initialAlpha, IN_PLACE_CLAMPS, type Leaf, LOG, type NoiseSite, type Op, PASS_THROUGH_METHODS, type Quantity, SQRT, upperBoundOfAlpha, walk, withInPlaceBound } from './rate-walk';
 import { fixesFor } from './fixes';
 
 /** Calls that draw standard-normal noise ε. */
@@ -115,7 +115,7 @@ function rateParameters(sem: Semantics, fn: FunctionInfo): RateParameter[] {
   memo.set(fn.node, result);
   const body = fn.node.child('body');
   if (!body) return result;
-  for (const n of descendants(body)) {
+  for (const n of body.subtree()) {
     let sites: NoiseSite[] = [];
     if (n.type === 'binary_operator') {
       const op = n.child('operator')?.text;
@@ -586,7 +586,7 @@ function findVarianceEvidence(sem: Semantics, leaf: Leaf, key: SyntaxNode, viaEx
       if (!body || method.name === '__init__') continue;
       let usesKl = false;
       let reads = false;
-      for (const n of descendants(body)) {
+      for (const n of body.subtree()) {
         if (n.type === 'float' && KL_CONSTANTS.some((k) => Math.abs(Number(n.text) - Math.abs(k)) < 1e-6)) usesKl = true;
         if (n.type !== 'attribute') {
           if ((n.type === 'call' || (n.type === 'binary_operator' && n.child('operator')?.text === '**')) && sqrtOfAlpha(sem, n, key, viaExp)) return `its square root is the noise standard deviation in \`${method.name}\``;

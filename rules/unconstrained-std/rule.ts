@@ -195,7 +195,7 @@ function stdParameters(sem: Semantics, fnNode: SyntaxNode, memo: Map<SyntaxNode,
   const record = (candidate: SyntaxNode) => {
     for (const index of parameterSources(fnSem, candidate, fn.params)) result.add(index);
   };
-  for (const n of descendants(fnNode.child('body') ?? fnNode)) {
+  for (const n of (fnNode.child('body') ?? fnNode).subtree()) {
     if (n.type === 'binary_operator' && n.child('operator')?.text === '*') {
       const left = n.child('left');
       const right = n.child('right');
@@ -403,11 +403,6 @@ function distributionName(sem: Semantics, call: SyntaxNode): string {
   return `${q.split('.').pop()} distribution`;
 }
 
-/** Every node of a subtree in preorder, the root first. */
-function descendants(root: SyntaxNode): SyntaxNode[] {
-  return root.subtree();
-}
-
 /** The argument of a logarithm (`torch.log(x)`, `x.log()`, `math.log(x)`). */
 function logArgument(sem: Semantics, node: SyntaxNode): SyntaxNode | null {
   if (node.type !== 'call') return null;
@@ -514,7 +509,6 @@ function constantFill(sem: Semantics, init: SyntaxNode, depth = 0): { value: num
   return null;
 }
 
-
 /** Expression text that calls softplus from a file, using its own imports. */
 function softplusCall(sem: Semantics, at: SyntaxNode, arg: string): string | null {
   const functional = sem.moduleAlias(at, 'torch.nn.functional');
@@ -611,7 +605,6 @@ function literal(value: number): string {
   const text = String(Number(value.toPrecision(10)));
   return /[.eE]/.test(text) ? text : `${text}.0`;
 }
-
 
 /**
  * Every reference to `<instance>.<name>` for instances of the class and its subclasses in the workspace, classified:

@@ -15,11 +15,17 @@ const v8 = require('node:v8');
 const vm = require('node:vm');
 
 /**
- * V8 settings applied before the bundle is compiled (the same list as server/src/cli/v8-tuning.ts, which applies them
- * when the bundle is loaded without this file, e.g. in worker threads; tests/v8-tuning.test.ts keeps the two equal).
- * They must be set before compiling because V8 rejects a code cache made under other flags.
+ * V8 settings applied before the bundle is compiled: they must be set first because V8 rejects a code cache made
+ * under other flags. They are process-wide, so the check's worker threads (which load the bundle themselves) run
+ * under them too. The analysis code is large and polymorphic; with V8's defaults, optimising compiles took about 7 s
+ * of background CPU per 100k-line check (docs/performance.md, "Compiler budgets").
  */
-const V8_TUNING_FLAGS = ['--max-inlined-bytecode-size-cumulative=150', '--interrupt-budget=300000'];
+const V8_TUNING_FLAGS = [
+  // Bytecode inlined into one optimised function in total (V8's default is 920).
+  '--max-inlined-bytecode-size-cumulative=150',
+  // Work a function does before it is considered for optimisation (V8's default is 132 KB in Node 20).
+  '--interrupt-budget=300000',
+];
 
 /** Header: 32 bytes of SHA-256 of the bundle text, then the run time (ms, uint32 LE) of the run that wrote it. */
 const HEADER_BYTES = 36;
@@ -59,16 +65,17 @@ function runBundle(bundlePath) {
     const runMs = Date.now() - started;
     // Keep an accepted cache unless it came from a short run and this run did clearly more.
     if (accepted && !(cachedRunMs < SHORT_RUN_MS && runMs >= 2 * Math.max(cachedRunMs, 1))) return;
+    const temp = `${cachePath}.${process.pid}.tmp`;
     try {
       const data = script.createCachedData();
       const header = Buffer.alloc(HEADER_BYTES);
       digest.copy(header, 0);
       header.writeUInt32LE(Math.min(runMs, 0xffffffff), 32);
-      const temp = `${cachePath}.${process.pid}.tmp`;
       fs.writeFileSync(temp, Buffer.concat([header, data]));
       fs.renameSync(temp, cachePath);
     } catch {
-      // A read-only install, a full disk: run without a cache.
+      // A read-only install, a full disk, something else in the cache's place: run without a cache, leave nothing.
+      fs.rmSync(temp, { force: true });
     }
   };
   process.once('exit', save);

@@ -1,6 +1,4 @@
 // Entry point of the bundle (server/dist/noisewise.js): wires the real engine and rule registry into the CLI and sets the exit code.
-// First, so that V8's compiler budgets are set before any analysis code is compiled.
-import './v8-tuning';
 import { allRules } from '../../../rules/index';
 import { runServerCommand } from '../lsp/server';
 import { processIo } from './io';

@@ -38,7 +38,7 @@ export function initParser(): Promise<Language> {
       const runtimeWasm = locateWasm('web-tree-sitter.wasm');
       await Parser.init({ locateFile: () => runtimeWasm });
       // The grammar's bytes, not its path: given a path, web-tree-sitter reads it through a dynamic import, which a
-      // bundle loaded from V8's code cache cannot run (see scripts/launcher.cjs).
+      // bundle loaded from V8's code cache cannot run (see server/bin/run-bundle.js).
       language = await Language.load(new Uint8Array(fs.readFileSync(locateWasm('tree-sitter-python.wasm'))));
       return language;
     })();

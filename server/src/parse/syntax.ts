@@ -64,7 +64,7 @@ export class SyntaxNode {
 
   /**
    * Called when the tree walk leaves this node: gives the children array its exact size. An array grown by `push`
-   * keeps spare capacity (V8 grows a one-element array to 17 slots), which for a whole file's nodes was about a third
+   * keeps spare capacity (V8 grows a one-element array to 17 slots), which for a whole file's nodes was about a quarter
    * of the copied tree's memory.
    */
   sealChildren(): void {

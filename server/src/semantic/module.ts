@@ -615,7 +615,6 @@ function collectReturns(fnNode: SyntaxNode, out: SyntaxNode[]): void {
   }
 }
 
-/** Strips parentheses around an expression. */
 /** The name an expression is assigned to (`w` in `w = …`, `weight` in `self.weight = …`), or null. */
 export function assignedName(node: SyntaxNode): string | null {
   const parent = node.parent;
@@ -627,6 +626,7 @@ export function assignedName(node: SyntaxNode): string | null {
   return null;
 }
 
+/** Strips parentheses around an expression. */
 export function unwrapParens(node: SyntaxNode): SyntaxNode {
   let n = node;
   while (n.type === 'parenthesized_expression' && n.namedChildren.length === 1) n = n.namedChildren[0]!;

@@ -388,29 +388,44 @@ export class Semantics {
     return null;
   }
 
-  /** The calls in a workspace file whose callee's last name is `name` (`f(…)`, `obj.f(…)`), from a per-file index. */
+  /** The calls of a workspace file, in source order, from a per-file index. */
+  callsIn(absPath: string): SyntaxNode[] {
+    const memo = this.workspace.memoTable<string, SyntaxNode[]>('calls');
+    let calls = memo.get(absPath);
+    if (!calls) {
+      calls = this.nodesOf(absPath).filter((node) => node.type === 'call' && node.child('function') !== null);
+      memo.set(absPath, calls);
+    }
+    return calls;
+  }
+
+  /** The calls in a workspace file whose callee is a name or attribute ending in `name` (`f(…)`, `obj.f(…)`), from a per-file index. */
   callsNamed(absPath: string, name: string): SyntaxNode[] {
-    return this.byLastName('calls-by-name', absPath, name, (node) => {
-      if (node.type !== 'call') return undefined;
-      const fn = node.child('function');
-      return fn?.type === 'attribute' ? fn.child('attribute')?.text : fn?.text;
+    return this.byLastName('calls-by-name', absPath, name, () => this.callsIn(absPath), (call) => {
+      const fn = call.child('function')!;
+      return fn.type === 'attribute' ? fn.child('attribute')?.text : fn.type === 'identifier' ? fn.text : undefined;
     });
   }
 
   /** The attribute nodes `x.<name>` of a workspace file, from a per-file index. */
   attributesNamed(absPath: string, name: string): SyntaxNode[] {
-    return this.byLastName('attributes-by-name', absPath, name, (node) => (node.type === 'attribute' ? node.child('attribute')?.text : undefined));
+    return this.byLastName('attributes-by-name', absPath, name, () => this.nodesOf(absPath), (node) => (node.type === 'attribute' ? node.child('attribute')?.text : undefined));
+  }
+
+  /** Every node of a workspace file (this check's file without a workspace lookup). */
+  private nodesOf(absPath: string): SyntaxNode[] {
+    const analysis = absPath === this.analysis.file.absPath ? this.analysis : this.workspace.analysis(absPath);
+    return analysis?.syntax.nodes ?? [];
   }
 
   /** Nodes of a file grouped by a name `pick` reads from them, built once per file and memo lifetime. */
-  private byLastName(table: string, absPath: string, name: string, pick: (node: SyntaxNode) => string | undefined): SyntaxNode[] {
+  private byLastName(table: string, absPath: string, name: string, nodes: () => SyntaxNode[], pick: (node: SyntaxNode) => string | undefined): SyntaxNode[] {
     const memo = this.workspace.memoTable<string, Map<string, SyntaxNode[]>>(table);
     let index = memo.get(absPath);
     if (!index) {
       index = new Map();
       memo.set(absPath, index);
-      const analysis = absPath === this.analysis.file.absPath ? this.analysis : this.workspace.analysis(absPath);
-      for (const node of analysis?.syntax.nodes ?? []) {
+      for (const node of nodes()) {
         const key = pick(node);
         if (key === undefined) continue;
         const list = index.get(key);
@@ -629,6 +644,5 @@ export function qualifiedNameOfSymbol(symbol: ResolvedSymbol): string {
       return symbol.qualifiedName;
   }
 }
-
 
 const BUILTINS = new Set(['len', 'abs', 'min', 'max', 'sum', 'float', 'int', 'range', 'print', 'list', 'dict', 'tuple', 'zip', 'enumerate', 'map', 'iter', 'next', 'round', 'pow', 'isinstance', 'super', 'getattr', 'setattr', 'sorted', 'reversed', 'any', 'all', 'property', 'staticmethod', 'classmethod']);
