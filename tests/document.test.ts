@@ -1,9 +1,12 @@
 // Incremental re-parsing of a PythonDocument: after any edit (or batch of edits), the syntax copy must equal a fresh parse of the new text.
+import * as fs from 'node:fs';
+import * as path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import type { Parser } from 'web-tree-sitter';
 import { getParser } from '../server/src/engine/check';
 import { PythonDocument, type TextChange } from '../server/src/parse/document';
 import type { SyntaxFile } from '../server/src/parse/syntax';
+import { sourceFiles } from './helpers/engine';
 
 let parser: Parser;
 beforeAll(async () => {
@@ -13,6 +16,21 @@ beforeAll(async () => {
 /** Every node as `type[field]@start-end`, in preorder, plus the error count: what "the same syntax" means here. */
 function shape(syntax: SyntaxFile): string[] {
   return [...syntax.nodes.map((n) => `${n.type}${n.field ? `[${n.field}]` : ''}${n.missing ? '!' : ''}@${n.start}-${n.end}`), `errors:${syntax.errors.length}`];
+}
+
+/**
+ * Everything a rule can read of the tree: per node its id, type, field, range, text, parent and children (by id), the
+ * named children, and that it belongs to this file and sits at its id; then the errors. Subtrees taken over from the
+ * previous version must be indistinguishable from freshly copied ones.
+ */
+function fullShape(syntax: SyntaxFile): string[] {
+  const out = syntax.nodes.map((n, i) => {
+    const ids = (list: readonly { id: number }[]) => list.map((c) => c.id).join(',');
+    const home = n.file === syntax && syntax.nodes[n.id] === n && n.id === i ? '' : ' MISPLACED';
+    return `${n.id} ${n.type}[${n.field ?? ''}]${n.missing ? '!' : ''}@${n.start}-${n.end} ^${n.parent?.id ?? -1} (${ids(n.children)}) (${ids(n.namedChildren)}) ${JSON.stringify(n.text)}${home}`;
+  });
+  out.push(`root ${syntax.root === syntax.nodes[0]}`, ...syntax.errors.map((e) => `error ${e.type}@${e.start}-${e.end} ${e.missing} ${e.file === syntax}`));
+  return out;
 }
 
 /** Applies edits the way `PythonDocument.edit` documents them (each in offsets of the text left by the previous one). */
@@ -190,5 +208,90 @@ describe('PythonDocument.edit', () => {
     expect((doc as unknown as { tree: unknown }).tree).toBeNull();
     const next = editAndCompare(doc, [{ start: STAGE.length, end: STAGE.length, newText: 'z = 3\n' }]);
     next.dispose();
+  });
+
+  it('takes unchanged subtrees over from the previous copy, and the result equals a fresh parse in every detail', () => {
+    // Every Python source of the repository, each edited at pseudo-random places: a character typed or deleted,
+    // an identifier renamed, a line broken or joined, brackets and quotes opened (which re-parses the rest of the
+    // file differently), a comment typed. Each result must equal a fresh parse node by node.
+    const root = path.resolve(__dirname, '..');
+    const files = ['rules', 'test-workspaces'].flatMap((dir) => sourceFiles(path.join(root, dir))).filter((f) => f.endsWith('.py'));
+    expect(files.length).toBeGreaterThan(100);
+    let seed = 20261202;
+    const random = (n: number) => {
+      seed = (seed * 1103515245 + 12345) % 2147483648;
+      return seed % n;
+    };
+    const inserts = ['x', 's', '_', '(', ')', '[', '"', "'''", '\n', '\n    ', ':', '#', ' ', 'σ', '0', '.', ', ', 'lambda', 'def '];
+    let edits = 0;
+    let reusedEdits = 0;
+    let reusedNodes = 0;
+    let totalNodes = 0;
+    for (const file of files.filter((_, i) => i % 3 === 0)) {
+      let doc = PythonDocument.parse(parser, fs.readFileSync(file, 'utf8'), true);
+      for (let k = 0; k < 4; k++) {
+        const text = doc.text;
+        let at = random(text.length + 1);
+        if (at > 0 && at < text.length && /[\uDC00-\uDFFF]/.test(text[at]!)) at--;
+        let end = at;
+        if (random(3) === 0) {
+          end = Math.min(text.length, at + 1 + random(8));
+          if (end < text.length && /[\uDC00-\uDFFF]/.test(text[end]!)) end++;
+        }
+        const change: TextChange = { start: at, end, newText: random(4) === 0 ? '' : inserts[random(inserts.length)]! };
+        const expectedText = applyAll(text, [change]);
+        const next = doc.edit(parser, [change]);
+        const fresh = PythonDocument.parse(parser, expectedText);
+        expect(fullShape(next.syntax), `${path.relative(root, file)} edit ${JSON.stringify(change)}`).toEqual(fullShape(fresh.syntax));
+        edits++;
+        if (next.syntax.reusedNodes > 0) reusedEdits++;
+        reusedNodes += next.syntax.reusedNodes;
+        totalNodes += next.syntax.nodes.length;
+        doc = next;
+      }
+      doc.dispose();
+    }
+    expect(edits).toBeGreaterThan(100);
+    // Most edits leave most of the file alone: the copy must really take those parts over.
+    expect(reusedEdits / edits).toBeGreaterThan(0.8);
+    expect(reusedNodes / totalNodes).toBeGreaterThan(0.5);
+  });
+
+  it('copies everything afresh when there is no previous tree, and takes nothing over across a parse error', () => {
+    const broken = 'import torch\n\ndef f(:\n    return torch.zeros(3)\n\n\ndef g():\n    return 1\n';
+    const doc = PythonDocument.parse(parser, broken, true);
+    // Typing at the very end: `f` (with its error) lies in the unchanged prefix but must be copied again.
+    const next = editAndCompare(doc, [{ start: broken.length, end: broken.length, newText: 'y = 2\n' }]);
+    const f = next.syntax.nodes.find((n) => n.type === 'function_definition')!;
+    expect(next.syntax.errors.length).toBeGreaterThan(0);
+    expect(next.syntax.errors.every((e) => e.file === next.syntax)).toBe(true);
+    expect(f.file).toBe(next.syntax);
+    expect(next.syntax.reusedNodes).toBeGreaterThan(0);
+    // A document without a tree re-parses from scratch: nothing to take over.
+    const plain = PythonDocument.parse(parser, STAGE);
+    const edited = editAndCompare(plain, [{ start: 0, end: 0, newText: '# a\n' }]);
+    expect(edited.syntax.reusedNodes).toBe(0);
+    next.dispose();
+    edited.dispose();
+  });
+
+  it('takes over the right nodes when a line is inserted above lines of the same length', () => {
+    // Every statement moves by exactly one line, so each new offset is some other statement's old offset: matching
+    // must go by the offsets the previous copy had before any node moved.
+    const line = (i: number) => `w${i % 10} = torch.zeros(${i % 10})\n`;
+    const text = ['import torch\n', ...Array.from({ length: 40 }, (_, i) => line(i))].join('');
+    let doc = PythonDocument.parse(parser, text, true);
+    const at = 'import torch\n'.length;
+    for (let k = 0; k < 3; k++) {
+      const next = doc.edit(parser, [{ start: at, end: at, newText: line(7 + k) }]);
+      expect(fullShape(next.syntax)).toEqual(fullShape(PythonDocument.parse(parser, next.text).syntax));
+      expect(next.syntax.reusedNodes).toBeGreaterThan(next.syntax.nodes.length / 2);
+      doc = next;
+    }
+    // And removed again, from the middle.
+    const middle = doc.text.indexOf(line(20));
+    const last = doc.edit(parser, [{ start: middle, end: middle + line(20).length, newText: '' }]);
+    expect(fullShape(last.syntax)).toEqual(fullShape(PythonDocument.parse(parser, last.text).syntax));
+    last.dispose();
   });
 });

@@ -118,4 +118,26 @@ describe('open documents', () => {
     const change = spanChange(before, after);
     expect(before.slice(0, change.start) + change.newText + before.slice(change.end)).toBe(after);
   });
+
+  it('does not re-parse when a batch of changes leaves the text as it was, so the syntax the engine holds stays whole', () => {
+    const docs = new OpenDocuments(() => parser);
+    const open = docs.openText({ uri: 'file:///gauge.py', languageId: 'python', version: 1, text: BASE }, '/gauge.py');
+    const held = open.doc;
+    const at = new LineIndex(BASE).toLsp(BASE.indexOf('forward'));
+    // A character typed and deleted again in one notification.
+    docs.changeText('file:///gauge.py', 2, [
+      { range: { start: at, end: at }, text: 'x' },
+      { range: { start: at, end: { line: at.line, character: at.character + 1 } }, text: '' },
+    ]);
+    expect(open.text).toBe(BASE);
+    // The same document and syntax: a re-parse would have moved its nodes into a new copy.
+    expect(open.doc).toBe(held);
+    expect(held.syntax.nodes.every((n) => n.file === held.syntax)).toBe(true);
+    // A real change still re-parses, taking the untouched nodes over.
+    docs.changeText('file:///gauge.py', 3, [{ range: { start: at, end: at }, text: 'y' }]);
+    expect(open.doc).not.toBe(held);
+    expect(open.doc.syntax.reusedNodes).toBeGreaterThan(0);
+    expect(shape(open.doc.syntax)).toEqual(shape(PythonDocument.parse(parser, open.text).syntax));
+    docs.disposeAll();
+  });
 });

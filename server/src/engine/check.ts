@@ -138,7 +138,7 @@ function failedReport(file: WorkspaceFile, message: string, analysis?: FileAnaly
 
 function runRules(workspace: Workspace, analysis: FileAnalysis, settings: EngineSettings, selection: RuleSelection | undefined, notes: FileNote[], deadline: Deadline): Finding[] {
   const sem = new Semantics(workspace, analysis, deadline);
-  const lines = new LineIndex(analysis.text);
+  const lines = LineIndex.of(analysis.text);
   const datasetSizeNames = [...DEFAULT_DATASET_SIZE_NAMES, ...settings.datasetSizeNames];
   const pathOfNode = (node: SyntaxNode): string => workspace.analysisOfNode(node)?.file.path ?? analysis.file.path;
   const active = enabledRules(settings, selection);

@@ -63,12 +63,19 @@ export class OpenTextDocument {
         text = change.text;
         continue;
       }
-      const index = new LineIndex(text);
+      const index = LineIndex.of(text);
       const start = index.fromLsp(change.range.start);
       const end = Math.max(start, index.fromLsp(change.range.end));
       this.pending.push({ start, end, newText: change.text });
       text = text.slice(0, start) + change.text + text.slice(end);
       this.pendingText = text;
+    }
+    // Changes that leave the parsed text as it was (a character typed and deleted in one batch) need no re-parse. This
+    // also keeps the rule that a document's syntax is replaced only together with its text: the engine drops analyses
+    // built on the old syntax when the text changes, and a re-parse takes nodes over from the old syntax.
+    if (this.pendingText !== null && this.pendingText === this.current.text) {
+      this.pending = [];
+      this.pendingText = null;
     }
   }
 
@@ -327,7 +334,7 @@ export function applyToString(text: string, changes: readonly TextDocumentConten
       out = change.text;
       continue;
     }
-    const index = new LineIndex(out);
+    const index = LineIndex.of(out);
     const start = index.fromLsp(change.range.start);
     const end = Math.max(start, index.fromLsp(change.range.end));
     out = out.slice(0, start) + change.text + out.slice(end);

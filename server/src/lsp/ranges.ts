@@ -27,7 +27,7 @@ export class FileView {
 
   /** Line index of the analysed text. */
   get lines(): LineIndex {
-    this.index ??= new LineIndex(this.text);
+    this.index ??= LineIndex.of(this.text);
     return this.index;
   }
 

@@ -37,10 +37,16 @@ export class PythonDocument {
   edit(parser: Parser, changes: TextChange[]): PythonDocument {
     let text = this.text;
     const tree = this.tree;
+    // What no change touched, for taking subtrees over: everything before the earliest start, and at the end the
+    // shortest of the tails the changes leave alone (each change keeps the last `length - end` characters of its text).
+    let prefix = text.length;
+    let suffix = text.length;
     for (const change of changes) {
-      const before = new LineIndex(text);
+      prefix = Math.min(prefix, change.start);
+      suffix = Math.min(suffix, text.length - change.end);
+      const before = LineIndex.of(text);
       const next = text.slice(0, change.start) + change.newText + text.slice(change.end);
-      const after = new LineIndex(next);
+      const after = LineIndex.of(next);
       if (tree) {
         const newEnd = change.start + change.newText.length;
         tree.edit(
@@ -57,11 +63,14 @@ export class PythonDocument {
       text = next;
     }
     const newTree = parser.parse(text, tree ?? undefined);
+    // Where the structure changed, per tree-sitter (the old tree must be the edited one, as here).
+    const changed = tree && newTree ? tree.getChangedRanges(newTree) : null;
     tree?.delete();
     // This document no longer owns a tree: a later dispose() or edit() on it must not touch the freed one.
     this.tree = null;
     if (!newTree) throw new Error('noisewise: the parser returned no tree');
-    return new PythonDocument(text, newTree, toSyntaxFile(newTree, text));
+    // Unchanged subtrees of this document's copy move into the new one, so this document's syntax is spent now.
+    return new PythonDocument(text, newTree, toSyntaxFile(newTree, text, changed ? { previous: this.syntax, prefix, suffix, changed } : undefined));
   }
 
   /** Frees the tree-sitter tree (WASM memory); the syntax copy stays usable. */

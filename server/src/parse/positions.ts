@@ -14,6 +14,10 @@ export interface CliPosition {
   column: number;
 }
 
+/** How many texts `LineIndex.of` keeps indexed (the old and the new text of an edit, in a file and a notebook). */
+const RECENT_INDEXES = 4;
+const recentIndexes = new Map<string, LineIndex>();
+
 /** Line starts of one text, for converting offsets to positions and back in O(log lines). */
 export class LineIndex {
   /** Offsets (UTF-16 code units) at which each line begins; line 0 begins at 0. */
@@ -30,6 +34,21 @@ export class LineIndex {
       }
     }
     this.lineStarts = starts;
+  }
+
+  /**
+   * The line index of a text, shared with other callers that asked for the same text lately. While the user types,
+   * each version of a file is indexed by the editor's change, the re-parse, the check and the diagnostics: one scan of
+   * the text serves them all. Keyed by the text itself; a few recent texts are kept.
+   */
+  static of(text: string): LineIndex {
+    let index = recentIndexes.get(text);
+    if (index === undefined) {
+      index = new LineIndex(text);
+      if (recentIndexes.size >= RECENT_INDEXES) recentIndexes.delete(recentIndexes.keys().next().value!);
+    } else recentIndexes.delete(text);
+    recentIndexes.set(text, index);
+    return index;
   }
 
   /** Number of lines (a text ending in a newline has an empty last line). */

@@ -105,11 +105,18 @@ export class SyntaxFile {
   readonly errors: SyntaxNode[] = [];
   /** Per node id, the id of its last descendant (computed on first use; preorder makes every subtree contiguous). */
   private lastDescendants: Int32Array | null = null;
+  /** How many nodes were taken over from the copy of the previous version (incremental re-parse; else 0). */
+  reusedNodes = 0;
 
   constructor(readonly text: string) {}
 
   /** The id of a node's last descendant in `nodes` (the node's own id for a leaf). */
   lastDescendantId(node: SyntaxNode): number {
+    return this.lastDescendantIds()[node.id]!;
+  }
+
+  /** Per node id, the id of its last descendant. */
+  lastDescendantIds(): Int32Array {
     if (this.lastDescendants === null) {
       const nodes = this.nodes;
       const last = new Int32Array(nodes.length);
@@ -120,7 +127,7 @@ export class SyntaxFile {
       }
       this.lastDescendants = last;
     }
-    return this.lastDescendants[node.id]!;
+    return this.lastDescendants;
   }
 }
 
@@ -169,9 +176,120 @@ export function fastWalkAvailable(): boolean {
  * cannot overflow the stack). Named nodes are kept; anonymous ones only where they carry a field (operators).
  * Uses the direct WASM walk when available (same result, a fraction of the calls), else the public cursor API.
  */
-export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
+export function toSyntaxFile(tree: Tree, text: string, reuse?: ReusableSyntax): SyntaxFile {
   const internals = wasmInternals();
-  return internals ? toSyntaxFileDirect(tree, text, internals) : toSyntaxFileWithCursor(tree, text);
+  return internals ? toSyntaxFileDirect(tree, text, internals, reuse) : toSyntaxFileWithCursor(tree, text);
+}
+
+/**
+ * The copy of the tree before an incremental re-parse, offered to `toSyntaxFile` of the new tree: subtrees of the new
+ * tree that lie wholly in the text the edit left alone, and whose structure tree-sitter reports unchanged, are taken
+ * over from it (renumbered and shifted) instead of being copied again from WASM memory. Taking them over moves the
+ * node objects into the new file: the previous SyntaxFile must not be used afterwards.
+ */
+export interface ReusableSyntax {
+  previous: SyntaxFile;
+  /** Length of the text at the start that the edit left alone (the same in the old and the new text). */
+  prefix: number;
+  /** Length of the text at the end that the edit left alone (at most the old and the new length minus `prefix`). */
+  suffix: number;
+  /** Ranges of the new tree whose syntactic structure changed (tree-sitter's `getChangedRanges`), UTF-16 offsets. */
+  changed: readonly { startIndex: number; endIndex: number }[];
+}
+
+/** The SyntaxNode fields that taking over a subtree rewrites (they are read-only for everyone else). */
+type Movable = { -readonly [K in 'id' | 'start' | 'end' | 'parent' | 'field' | 'file']: SyntaxNode[K] };
+
+/**
+ * Takes over subtrees of the previous copy for one new tree (see ReusableSyntax). The previous copy's node objects are
+ * renumbered and shifted as they move, so every lookup goes through the offsets and subtree ends read before the first
+ * move.
+ */
+class SubtreeReuse {
+  private readonly prefix: number;
+  private readonly delta: number;
+  /** Where the unchanged tail begins in the new text. */
+  private readonly tailStart: number;
+  private readonly previous: SyntaxFile;
+  private readonly changed: readonly { startIndex: number; endIndex: number }[];
+  /** Per node of the previous copy (by its old id): start, end, and the old id of its last descendant. */
+  private readonly starts: Int32Array;
+  private readonly ends: Int32Array;
+  private readonly lasts: Int32Array;
+  /** Nodes taken over so far (for the benchmark and the tests). */
+  taken = 0;
+
+  constructor(reuse: ReusableSyntax, text: string) {
+    const previous = reuse.previous;
+    this.previous = previous;
+    this.changed = reuse.changed;
+    const shorter = Math.min(previous.text.length, text.length);
+    this.prefix = Math.max(0, Math.min(reuse.prefix, shorter));
+    this.tailStart = text.length - Math.max(0, Math.min(reuse.suffix, shorter - this.prefix));
+    this.delta = text.length - previous.text.length;
+    const nodes = previous.nodes;
+    this.starts = new Int32Array(nodes.length);
+    this.ends = new Int32Array(nodes.length);
+    for (let i = 0; i < nodes.length; i++) {
+      this.starts[i] = nodes[i]!.start;
+      this.ends[i] = nodes[i]!.end;
+    }
+    this.lasts = previous.lastDescendantIds();
+  }
+
+  /**
+   * The old id of the previous copy's node for a named node of the new tree at [start, end) of the given type, when
+   * its whole subtree can be taken over: its text is in the unchanged prefix or tail, no changed range touches it, it
+   * holds no parse error, and a node of the same type spans the same text in the previous copy. Else -1.
+   */
+  match(type: string, start: number, end: number): number {
+    if (end <= start) return -1;
+    let shift: number;
+    if (end <= this.prefix) shift = 0;
+    else if (start >= this.tailStart) shift = this.delta;
+    else return -1;
+    for (const range of this.changed) if (range.startIndex <= end && start <= range.endIndex) return -1;
+    const oldStart = start - shift;
+    const oldEnd = end - shift;
+    const starts = this.starts;
+    // Preorder never decreases in start offset: find the first node starting at oldStart.
+    let lo = 0;
+    let hi = starts.length;
+    while (lo < hi) {
+      const mid = (lo + hi) >> 1;
+      if (starts[mid]! < oldStart) lo = mid + 1;
+      else hi = mid;
+    }
+    const nodes = this.previous.nodes;
+    for (let i = lo; i < starts.length && starts[i] === oldStart; i++) {
+      const candidate = nodes[i]!;
+      if (this.ends[i] !== oldEnd || candidate.type !== type || candidate.missing) continue;
+      for (const error of this.previous.errors) if (error.start >= oldStart && error.end <= oldEnd) return -1;
+      return i;
+    }
+    return -1;
+  }
+
+  /** Moves the subtree of the previous copy's node `oldId` (from `match`) into `file` under `parent`; returns its root. */
+  take(oldId: number, file: SyntaxFile, parent: SyntaxNode, field: string | null): SyntaxNode {
+    const shift = this.starts[oldId]! >= this.prefix ? this.delta : 0;
+    const nodes = this.previous.nodes;
+    const last = this.lasts[oldId]!;
+    for (let i = oldId; i <= last; i++) {
+      const node = nodes[i] as unknown as Movable;
+      node.id = file.nodes.length;
+      node.start = this.starts[i]! + shift;
+      node.end = this.ends[i]! + shift;
+      node.file = file;
+      file.nodes.push(nodes[i]!);
+    }
+    const root = nodes[oldId]!;
+    const moved = root as unknown as Movable;
+    moved.parent = parent;
+    moved.field = field;
+    this.taken += last - oldId + 1;
+    return root;
+  }
 }
 
 /**
@@ -181,9 +299,10 @@ export function toSyntaxFile(tree: Tree, text: string): SyntaxFile {
  * NOTE: relies on web-tree-sitter 0.27.2's internal calling convention (cursor state in TRANSFER_BUFFER); the
  * equality of both walks is tested on every fixture, and the version is pinned.
  */
-export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInternals): SyntaxFile {
+export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInternals, reuse?: ReusableSyntax): SyntaxFile {
   const { C, TRANSFER_BUFFER } = internals;
   const file = new SyntaxFile(text);
+  const reusing = reuse ? new SubtreeReuse(reuse, text) : null;
   const language = tree.language as unknown as { types: string[]; fields: (string | null)[]; 0: number };
   const { types, fields } = internalizedNames(language);
   const treeAddress = (tree as unknown as { 0: number })[0];
@@ -201,6 +320,7 @@ export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInte
       // ERROR (and any symbol outside the grammar's table) is named or not per node; grammar symbols are fixed.
       const isNamed = typeId < named.length ? named[typeId] === 1 : C._ts_tree_cursor_current_node_is_named_wasm(treeAddress) === 1;
       let created: SyntaxNode | null = null;
+      let reused = false;
       if (isNamed || (parent !== null && OPERATOR_PARENTS.has(parent.type))) {
         const type = types[typeId] ?? 'ERROR';
         if (isNamed || (type !== '(' && type !== ')')) {
@@ -208,21 +328,28 @@ export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInte
           const field = fieldId ? (fields[fieldId] ?? null) : null;
           const start = C._ts_tree_cursor_start_index_wasm(treeAddress);
           const end = C._ts_tree_cursor_end_index_wasm(treeAddress);
-          const missing: boolean = start === end && parent !== null && C._ts_tree_cursor_current_node_is_missing_wasm(treeAddress) === 1;
-          created = new SyntaxNode(file.nodes.length, type, start, end, parent, field ?? (isNamed ? null : 'operator'), file, missing);
-          file.nodes.push(created);
-          if (parent) parent.appendChild(created);
-          else file.root = created;
-          if (type === 'ERROR' || missing) file.errors.push(created);
+          const oldId = reusing !== null && isNamed && parent !== null ? reusing.match(type, start, end) : -1;
+          if (oldId >= 0) {
+            // The same subtree as in the previous copy: moved over whole, and the walk goes on after it.
+            parent!.appendChild(reusing!.take(oldId, file, parent!, field));
+            reused = true;
+          } else {
+            const missing: boolean = start === end && parent !== null && C._ts_tree_cursor_current_node_is_missing_wasm(treeAddress) === 1;
+            created = new SyntaxNode(file.nodes.length, type, start, end, parent, field ?? (isNamed ? null : 'operator'), file, missing);
+            file.nodes.push(created);
+            if (parent) parent.appendChild(created);
+            else file.root = created;
+            if (type === 'ERROR' || missing) file.errors.push(created);
+          }
         }
       }
-      if (created === null && hasError && parent !== null) {
+      if (created === null && !reused && hasError && parent !== null) {
         const start = C._ts_tree_cursor_start_index_wasm(treeAddress);
         if (start === C._ts_tree_cursor_end_index_wasm(treeAddress) && C._ts_tree_cursor_current_node_is_missing_wasm(treeAddress) === 1) {
           file.errors.push(new SyntaxNode(file.nodes.length, types[typeId] ?? 'MISSING', start, start, parent, null, file, true));
         }
       }
-      if (isNamed && C._ts_tree_cursor_goto_first_child_wasm(treeAddress) === 1) {
+      if (isNamed && !reused && C._ts_tree_cursor_goto_first_child_wasm(treeAddress) === 1) {
         stack.push(parent);
         parent = created ?? parent;
         continue;
@@ -239,6 +366,7 @@ export function toSyntaxFileDirect(tree: Tree, text: string, internals: WasmInte
       }
       if (done) {
         file.root?.sealChildren();
+        if (reusing) file.reusedNodes = reusing.taken;
         return file;
       }
     }
