@@ -1,6 +1,7 @@
 // Benchmark of the language server through the real protocol: cold start (spawn → first diagnostics of an opened
 // 3,000-line file) and edit → diagnostics latency over single-character edits (typing into a comment in the middle
-// of the file), pushed (publishDiagnostics for the edit's version) and pulled (didChange then textDocument/diagnostic).
+// of the file), pushed (publishDiagnostics for the edit's version) and pulled (didChange then textDocument/diagnostic),
+// and pushed again while typing a statement into a function body next to that comment.
 // Prints one JSON object on stdout (`npm run bench` reads it). Needs the bundle (`npm run build`).
 // Usage: node scripts/bench-lsp.mjs [--edits N] [--lines N] [--quick] [--cpu-prof DIR]
 // `--cpu-prof DIR` runs the server under `node --cpu-prof` and leaves its profiles in DIR.
@@ -72,7 +73,8 @@ export function generateFile(lines) {
     );
     if (typingLine < 0 && out.length >= lines / 2) {
       typingLine = out.length;
-      out.push('# Field notes: ', '', '');
+      // A comment line to type into, and a function body line to type code into (two lines further down).
+      out.push('# Field notes: ', '', 'def field_adjust(stage):', '    ', '    return stage', '', '');
     }
     i++;
   }
@@ -221,6 +223,23 @@ async function main() {
     pushSamples.push(performance.now() - t);
     column++;
   }
+  // Typing code into a function body in the middle of the file: an assignment typed character by character (every
+  // state in between is what the analyser sees, half-typed names and open brackets included).
+  const codeSamples = [];
+  const statement = 'drift = torch.log(stage.abs() + 1e-6) * 0.02 + stage.mean(dim=0, keepdim=True) - stage.std() / 10; ';
+  column = '    '.length;
+  for (let i = 0; i < opts.edits; i++) {
+    const version = opts.edits + i + 2;
+    const wait = push.waitDiagnostics((p) => p.uri === uri && p.version === version);
+    const t = performance.now();
+    await push.connection.sendNotification('textDocument/didChange', {
+      textDocument: { uri, version },
+      contentChanges: [{ range: { start: { line: typingLine + 3, character: column }, end: { line: typingLine + 3, character: column } }, text: statement[i % statement.length] }],
+    });
+    await wait;
+    codeSamples.push(performance.now() - t);
+    column++;
+  }
   await stop(push);
 
   // Pull: the same typing, each edit followed by a document diagnostic request.
@@ -257,7 +276,7 @@ async function main() {
     cpus: os.cpus().length,
     file: { lines: lineCount, bytes: Buffer.byteLength(text), findings, pulledFindings: firstPull.items?.length ?? null },
     coldStart: { firstDiagnosticsMs: Math.round(coldStartMs * 10) / 10, pullFirstDiagnosticsMs: Math.round(pullColdStartMs * 10) / 10, firstPullRequestMs: Math.round(firstPullMs * 10) / 10 },
-    editToDiagnostics: { edits: opts.edits, kind: 'one character typed into a comment line in the middle of the file, sequentially', push: summary(pushSamples), pull: summary(pullSamples) },
+    editToDiagnostics: { edits: opts.edits, kind: 'one character typed into a comment line in the middle of the file, sequentially', push: summary(pushSamples), pull: summary(pullSamples), pushTypingCode: summary(codeSamples) },
     memoryOverEdits: memory,
   };
   process.stdout.write(JSON.stringify(result, null, 2) + '\n');

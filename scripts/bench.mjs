@@ -588,7 +588,8 @@ function summarise(results) {
     { target: `≥ 15 × faster than pyflakes on ${headName} (per line)`, value: head?.pyflakesOverCheck ?? null, limit: 15, better: 'higher' },
     { target: `peak RSS of the check ≤ 200 MB on ${headName}`, value: head?.checkPeakRssMb ?? null, limit: 200, better: 'lower' },
     { target: 'check time per kLOC at 1M within 1.2 × of 10k', value: perSize['1M'] && perSize['10k'] ? scaling['checkMsPerKLoc:1M/10k'] ?? null : null, limit: 1.2, better: 'lower' },
-    { target: 'language server: edit → diagnostics p95 ≤ 50 ms on a 3,000-line file (pushed)', value: lsp?.editToDiagnostics?.push?.p95Ms ?? null, limit: 50, better: 'lower' },
+    { target: 'language server: edit → diagnostics p95 ≤ 50 ms on a 3,000-line file (pushed, typing into a comment)', value: lsp?.editToDiagnostics?.push?.p95Ms ?? null, limit: 50, better: 'lower' },
+    { target: 'language server: edit → diagnostics p95 ≤ 50 ms on a 3,000-line file (pushed, typing code into a function body)', value: lsp?.editToDiagnostics?.pushTypingCode?.p95Ms ?? null, limit: 50, better: 'lower' },
     { target: 'language server: cold start → first diagnostics ≤ 500 ms (one file)', value: lsp?.coldStart?.firstDiagnosticsMs ?? null, limit: 500, better: 'lower' },
     // What a leak grows: the live JavaScript heap after a full collection plus the parser's WASM memory (which never
     // shrinks). Judged after the first 1,000 edits (working size reached), with 1 MB allowed for noise.
@@ -844,7 +845,8 @@ function tableFooter(results) {
         out.push(
           `language server (${r.file?.lines ?? '?'}-line file): cold start → first diagnostics ${r.coldStart.firstDiagnosticsMs} ms; ` +
             `edit → diagnostics p50 ${push.p50Ms} ms, p95 ${push.p95Ms} ms over ${push.count} edits (pushed)` +
-            (r.editToDiagnostics.pull ? `; pulled p50 ${r.editToDiagnostics.pull.p50Ms} ms, p95 ${r.editToDiagnostics.pull.p95Ms} ms` : ''),
+            (r.editToDiagnostics.pull ? `; pulled p50 ${r.editToDiagnostics.pull.p50Ms} ms, p95 ${r.editToDiagnostics.pull.p95Ms} ms` : '') +
+            (r.editToDiagnostics.pushTypingCode ? `; typing code into a function body (pushed) p50 ${r.editToDiagnostics.pushTypingCode.p50Ms} ms, p95 ${r.editToDiagnostics.pushTypingCode.p95Ms} ms` : ''),
         );
       } else out.push(`language server: ${JSON.stringify(r)}`);
       const m = r.memoryOverEdits;

@@ -107,7 +107,7 @@ export function checkFile(workspace: Workspace, absPath: string, settings: Engin
   }
   if (analysis.syntax.errors.length > 0) {
     const first = analysis.syntax.errors[0]!;
-    const where = new LineIndex(analysis.text).toCli(first.start);
+    const where = LineIndex.of(analysis.text).toCli(first.start);
     notes.push({ level: 'info', kind: 'syntax', message: `${analysis.syntax.errors.length} syntax error(s), the first at line ${where.line}; the rest of the file was still analysed` });
   }
   let findings: Finding[];
