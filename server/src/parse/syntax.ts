@@ -211,7 +211,11 @@ class SubtreeReuse {
   /** Where the unchanged tail begins in the new text. */
   private readonly tailStart: number;
   private readonly previous: SyntaxFile;
-  private readonly changed: readonly { startIndex: number; endIndex: number }[];
+  /** Starts and ends of tree-sitter's changed ranges (sorted, not overlapping). */
+  private readonly changedStarts: Int32Array;
+  private readonly changedEnds: Int32Array;
+  /** Start offsets of the previous copy's parse errors, sorted. */
+  private readonly errorStarts: Int32Array;
   /** Per node of the previous copy (by its old id): start, end, and the old id of its last descendant. */
   private readonly starts: Int32Array;
   private readonly ends: Int32Array;
@@ -222,7 +226,16 @@ class SubtreeReuse {
   constructor(reuse: ReusableSyntax, text: string) {
     const previous = reuse.previous;
     this.previous = previous;
-    this.changed = reuse.changed;
+    // Sorted and merged where they overlap, so that their ends are sorted too.
+    const merged: { startIndex: number; endIndex: number }[] = [];
+    for (const r of [...reuse.changed].sort((a, b) => a.startIndex - b.startIndex)) {
+      const last = merged[merged.length - 1];
+      if (last && r.startIndex <= last.endIndex) last.endIndex = Math.max(last.endIndex, r.endIndex);
+      else merged.push({ startIndex: r.startIndex, endIndex: r.endIndex });
+    }
+    this.changedStarts = Int32Array.from(merged, (r) => r.startIndex);
+    this.changedEnds = Int32Array.from(merged, (r) => r.endIndex);
+    this.errorStarts = Int32Array.from(previous.errors, (e) => e.start).sort();
     const shorter = Math.min(previous.text.length, text.length);
     this.prefix = Math.max(0, Math.min(reuse.prefix, shorter));
     this.tailStart = text.length - Math.max(0, Math.min(reuse.suffix, shorter - this.prefix));
@@ -248,24 +261,20 @@ class SubtreeReuse {
     if (end <= this.prefix) shift = 0;
     else if (start >= this.tailStart) shift = this.delta;
     else return -1;
-    for (const range of this.changed) if (range.startIndex <= end && start <= range.endIndex) return -1;
+    // A changed range touching [start, end]: the first range ending at or after `start` must begin after `end`.
+    const range = firstAtLeast(this.changedEnds, start);
+    if (range < this.changedStarts.length && this.changedStarts[range]! <= end) return -1;
     const oldStart = start - shift;
     const oldEnd = end - shift;
+    // A parse error of the previous copy starting inside [oldStart, oldEnd] (or one enclosing it and starting at
+    // oldStart, which is refused too): nothing of that stretch is taken over.
+    const error = firstAtLeast(this.errorStarts, oldStart);
+    if (error < this.errorStarts.length && this.errorStarts[error]! <= oldEnd) return -1;
+    // Preorder never decreases in start offset: the candidates are the run of nodes starting at oldStart.
     const starts = this.starts;
-    // Preorder never decreases in start offset: find the first node starting at oldStart.
-    let lo = 0;
-    let hi = starts.length;
-    while (lo < hi) {
-      const mid = (lo + hi) >> 1;
-      if (starts[mid]! < oldStart) lo = mid + 1;
-      else hi = mid;
-    }
     const nodes = this.previous.nodes;
-    for (let i = lo; i < starts.length && starts[i] === oldStart; i++) {
-      const candidate = nodes[i]!;
-      if (this.ends[i] !== oldEnd || candidate.type !== type || candidate.missing) continue;
-      for (const error of this.previous.errors) if (error.start >= oldStart && error.end <= oldEnd) return -1;
-      return i;
+    for (let i = firstAtLeast(starts, oldStart); i < starts.length && starts[i] === oldStart; i++) {
+      if (this.ends[i] === oldEnd && nodes[i]!.type === type && !nodes[i]!.missing) return i;
     }
     return -1;
   }
@@ -290,6 +299,18 @@ class SubtreeReuse {
     this.taken += last - oldId + 1;
     return root;
   }
+}
+
+/** The first index of a sorted array whose value is at least `value` (the array's length when there is none). */
+function firstAtLeast(sorted: Int32Array, value: number): number {
+  let lo = 0;
+  let hi = sorted.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >> 1;
+    if (sorted[mid]! < value) lo = mid + 1;
+    else hi = mid;
+  }
+  return lo;
 }
 
 /**
