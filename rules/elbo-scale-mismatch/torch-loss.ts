@@ -104,8 +104,20 @@ function optimisedRoots(flow: Flow, absPath: string): SyntaxNode[] {
   return out;
 }
 
-/** Judges one optimised loss: one verdict per (combination, KL term) whose weight is off. */
+/**
+ * Judges one optimised loss: one verdict per (combination, KL term) whose weight is off. Remembered per root: a loss
+ * is judged again for every file whose terms it may hold (each file of the program it belongs to asks).
+ */
 function verdictsOfRoot(flow: Flow, expander: Expander, root: SyntaxNode): Verdict[] {
+  const memo = flow.memoTable<SyntaxNode, Verdict[]>('elbo-scale-mismatch:verdicts');
+  const cached = memo.get(root);
+  if (cached) return cached;
+  const out = judgeRoot(flow, expander, root);
+  memo.set(root, out);
+  return out;
+}
+
+function judgeRoot(flow: Flow, expander: Expander, root: SyntaxNode): Verdict[] {
   const expansion = expander.expand(root, null);
   const out: Verdict[] = [];
   for (const combo of expansion.combos) {
