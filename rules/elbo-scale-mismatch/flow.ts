@@ -1,7 +1,7 @@
 // Data flow for elbo-scale-mismatch: values of expressions through assignments, parameters (bound by the call
 // being analysed, or by every call site in the workspace), attributes and returns; which tensors are minibatches
 // and which are full training arrays; which loop feeds them; and what a scale expression means (N, B, K, a number).
-import { type Binding, type ClassInfo, type ConstantValue, type FunctionInfo, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
+import { type Binding, type ClassInfo, type ConstantValue, firstAtLeast, type FunctionInfo, type Semantics, type SyntaxNode, unwrapParens } from '../../server/src/engine/api';
 import { constant, ONE, OPAQUE, over, power, type Scale, symbol, type SymbolUse, times } from './scale';
 
 /** Argument bindings of one analysed call: parameter → the argument expression and the frame it is evaluated in. */
@@ -1488,14 +1488,7 @@ function hasCommentOnLine(sem: Semantics, node: SyntaxNode): boolean {
   const prevStart = lineStart > 0 ? text.lastIndexOf('\n', lineStart - 2) + 1 : lineStart;
   const starts = documentingComments(sem, node);
   // The first comment at or after the previous line's start (binary search), then the few up to the line's end.
-  let lo = 0;
-  let hi = starts.length;
-  while (lo < hi) {
-    const mid = (lo + hi) >> 1;
-    if (starts[mid]! < prevStart) lo = mid + 1;
-    else hi = mid;
-  }
-  for (let i = lo; i < starts.length && starts[i]! < end; i++) {
+  for (let i = firstAtLeast(starts, prevStart); i < starts.length && starts[i]! < end; i++) {
     const c = starts[i]!;
     if (c >= lineStart) return true;
     if (text.slice(prevStart, c).trim() === '') return true;

@@ -7,6 +7,7 @@ import type { RuleMeta } from './rule-meta';
 import type { FileSummaryKind } from './summaries';
 
 export type { SyntaxNode } from '../parse/syntax';
+export { firstAtLeast } from '../parse/sorted';
 export type { Binding, ClassInfo, FunctionInfo, Scope } from '../semantic/module';
 export { assignedName, unwrapParens } from '../semantic/module';
 export type { Callee, Origin, ResolvedSymbol, Semantics, ValueType } from '../semantic/queries';

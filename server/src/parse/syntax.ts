@@ -2,6 +2,7 @@
 // analysis never crosses into WASM memory and the tree-sitter tree can be freed (or kept only for re-parsing).
 import * as treeSitter from 'web-tree-sitter';
 import type { Tree } from 'web-tree-sitter';
+import { firstAtLeast } from './sorted';
 
 /** One node of the syntax tree; offsets are UTF-16 code units into the parsed text. */
 export class SyntaxNode {
@@ -299,18 +300,6 @@ class SubtreeReuse {
     this.taken += last - oldId + 1;
     return root;
   }
-}
-
-/** The first index of a sorted array whose value is at least `value` (the array's length when there is none). */
-function firstAtLeast(sorted: Int32Array, value: number): number {
-  let lo = 0;
-  let hi = sorted.length;
-  while (lo < hi) {
-    const mid = (lo + hi) >> 1;
-    if (sorted[mid]! < value) lo = mid + 1;
-    else hi = mid;
-  }
-  return lo;
 }
 
 /**
