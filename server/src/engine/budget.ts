@@ -22,7 +22,7 @@ export class Deadline {
   private current: string | null = null;
   private currentStart = 0;
   private readonly startedAt: number;
-  /** The clock as last read (by `leave`), so that `fileSpent` costs no clock read of its own. */
+  /** The clock as last read (by `leave`), so that `enter` and `fileSpent` cost no clock read of their own. */
   private lastNow: number;
 
   constructor(
@@ -39,10 +39,14 @@ export class Deadline {
     return this.budgetMs * 1.5;
   }
 
-  /** Starts timing a rule's listener. */
+  /**
+   * Starts timing a rule's listener. No clock read: the listener's time starts where the last one ended (`leave`
+   * reads the clock), since only the walk's own bookkeeping runs in between. In a profile of the server, reading the
+   * clock twice per listener took about 1.3 ms of the 36 ms of CPU each edit of a 3,000-line file cost.
+   */
   enter(ruleId: string): void {
     this.current = ruleId;
-    this.currentStart = this.now();
+    this.currentStart = this.lastNow;
   }
 
   /** Stops timing the current listener. */

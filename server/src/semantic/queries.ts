@@ -367,13 +367,30 @@ export class Semantics {
     const out: ClassInfo[] = [cls];
     memo.set(cls, out);
     for (const file of this.workspace.dependentsOf(cls.module.syntax === this.analysis.syntax ? this.analysis.file.absPath : (this.workspace.analysisOfNode(cls.node)?.file.absPath ?? this.analysis.file.absPath))) {
-      const analysis = this.workspace.analysis(file);
-      if (!analysis) continue;
-      for (const c of analysis.module.classes) {
-        if (c !== cls && this.ancestry(c).includes(cls)) out.push(c);
-      }
+      const below = this.subclassIndex(file)?.get(cls);
+      if (below) out.push(...below);
     }
     return out;
+  }
+
+  /** Per class, the classes of one file that derive from it (in the file's order), built once per file. */
+  private subclassIndex(absPath: string): Map<ClassInfo, ClassInfo[]> | null {
+    const memo = this.workspace.memoTable<string, Map<ClassInfo, ClassInfo[]>>('subclass-index');
+    const cached = memo.get(absPath);
+    if (cached) return cached;
+    const analysis = this.workspace.analysis(absPath);
+    if (!analysis) return null;
+    const index = new Map<ClassInfo, ClassInfo[]>();
+    memo.set(absPath, index);
+    for (const c of analysis.module.classes) {
+      for (const ancestor of this.ancestry(c)) {
+        if (ancestor === c) continue;
+        const list = index.get(ancestor);
+        if (list) list.push(c);
+        else index.set(ancestor, [c]);
+      }
+    }
+    return index;
   }
 
   /**
