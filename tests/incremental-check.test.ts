@@ -82,3 +82,29 @@ describe('checking an edited document', () => {
     expect(withFindings / compared).toBeGreaterThan(0.7);
   });
 });
+
+describe('a syntax tree re-parsed away under an analysis', () => {
+  it('is noticed: the workspace builds the analysis again instead of using nodes that moved to another copy', async () => {
+    const parser = await getParser();
+    const root = path.resolve('/virtual/spent');
+    const absPath = path.join(root, 'gauge.py');
+    const text = fs.readFileSync(path.resolve(__dirname, '..', 'rules', 'unconstrained-std', 'cases', 'flagged-basic.py'), 'utf8');
+    const { PythonDocument } = await import('../server/src/parse/document');
+    const first = PythonDocument.parse(parser, text, true);
+    const workspace = new Workspace(root, () => parser);
+    workspace.setFile({ path: 'gauge.py', absPath, text, parsed: first.syntax });
+    const before = checkFile(workspace, absPath, SETTINGS);
+    expect(before.findings.length).toBeGreaterThan(0);
+    // A re-parse that leaves the text as it was: every node moves into the new copy, and the workspace, told the
+    // same text, keeps its analysis.
+    const second = first.edit(parser, [{ start: 0, end: 0, newText: '' }]);
+    expect(second.syntax.reusedNodes).toBeGreaterThan(0);
+    expect(first.syntax.spent).toBe(true);
+    expect(workspace.setFile({ path: 'gauge.py', absPath, text, parsed: second.syntax })).toBe(false);
+    const after = checkFile(workspace, absPath, SETTINGS);
+    expect(after.notes).toEqual(before.notes);
+    expect(summary(after)).toEqual(summary(before));
+    expect(workspace.analysis(absPath)!.syntax).toBe(second.syntax);
+    second.dispose();
+  });
+});

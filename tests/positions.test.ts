@@ -143,3 +143,34 @@ describe('round trips on generated text', () => {
     );
   });
 });
+
+describe('LineIndex.of', () => {
+  it('shares one index per text among recent texts and indexes any other text afresh', () => {
+    const a = 'x = 1\ny = 2\n';
+    const b = 'x = 1\n\ny = 2\n';
+    const first = LineIndex.of(a);
+    // The same text, even as another string object, gets the same index.
+    expect(LineIndex.of(`x = 1\n${'y = 2\n'}`)).toBe(first);
+    expect(LineIndex.of(b)).not.toBe(first);
+    expect(LineIndex.of(b).lineStarts).toEqual(new LineIndex(b).lineStarts);
+    // After more texts than it keeps, the oldest is indexed again (and still right).
+    for (let i = 0; i < 8; i++) LineIndex.of(`z = ${i}\n`);
+    const again = LineIndex.of(a);
+    expect(again).not.toBe(first);
+    expect(again.lineStarts).toEqual(first.lineStarts);
+  });
+});
+
+describe('firstAtLeast', () => {
+  it('finds the first position whose value is at least the one asked for', async () => {
+    const { firstAtLeast } = await import('../server/src/parse/sorted');
+    fc.assert(
+      fc.property(fc.array(fc.integer({ min: -50, max: 50 })), fc.integer({ min: -60, max: 60 }), (values, x) => {
+        const sorted = [...values].sort((p, q) => p - q);
+        const expected = sorted.findIndex((v) => v >= x);
+        expect(firstAtLeast(sorted, x)).toBe(expected === -1 ? sorted.length : expected);
+        expect(firstAtLeast(Int32Array.from(sorted), x)).toBe(expected === -1 ? sorted.length : expected);
+      }),
+    );
+  });
+});

@@ -108,6 +108,11 @@ export class SyntaxFile {
   private lastDescendants: Int32Array | null = null;
   /** How many nodes were taken over from the copy of the previous version (incremental re-parse; else 0). */
   reusedNodes = 0;
+  /**
+   * True once the copy of a later version may have taken this copy's nodes over (see ReusableSyntax): its nodes may
+   * belong to another file now, so whatever was built on it must be built again.
+   */
+  spent = false;
 
   constructor(readonly text: string) {}
 
@@ -227,6 +232,7 @@ class SubtreeReuse {
   constructor(reuse: ReusableSyntax, text: string) {
     const previous = reuse.previous;
     this.previous = previous;
+    previous.spent = true;
     // Sorted and merged where they overlap, so that their ends are sorted too.
     const merged: { startIndex: number; endIndex: number }[] = [];
     for (const r of [...reuse.changed].sort((a, b) => a.startIndex - b.startIndex)) {

@@ -144,7 +144,14 @@ export class Workspace {
   /** The analysis of a file, building it when needed. */
   analysis(absPathIn: string): FileAnalysis | null {
     const absPath = path.resolve(absPathIn);
-    const cached = this.analyses.get(absPath);
+    let cached = this.analyses.get(absPath);
+    if (cached?.syntax.spent) {
+      // Its syntax was re-parsed away under it (a caller re-parsed a document without a new text): build it again,
+      // and forget what the memo tables derived from the old nodes.
+      this.analyses.delete(absPath);
+      this.memo.clear();
+      cached = undefined;
+    }
     if (cached) {
       // Refresh its place in the LRU order.
       this.analyses.delete(absPath);
@@ -371,7 +378,7 @@ export class Workspace {
     }
     const handed = this.preParsed.get(file.absPath);
     const parsed = typeof handed === 'function' ? handed() : handed;
-    const syntax = parsed && parsed.text === text ? parsed : PythonDocument.parse(this.parser(), text).syntax;
+    const syntax = parsed && parsed.text === text && !parsed.spent ? parsed : PythonDocument.parse(this.parser(), text).syntax;
     const module = new ModuleAnalysis(syntax, file.moduleName, file.isPackage);
     return { file, text, notebook, syntax, module, unreadable };
   }
