@@ -8,6 +8,7 @@ import { describe, expect, it } from 'vitest';
 import { checkFile, getParser } from '../server/src/engine/check';
 import type { FileReport } from '../server/src/engine/types';
 import { OpenDocuments } from '../server/src/lsp/documents';
+import { PythonDocument } from '../server/src/parse/document';
 import { LineIndex } from '../server/src/parse/positions';
 import { Workspace } from '../server/src/semantic/workspace';
 import { sourceFiles } from './helpers/engine';
@@ -89,7 +90,6 @@ describe('a syntax tree re-parsed away under an analysis', () => {
     const root = path.resolve('/virtual/spent');
     const absPath = path.join(root, 'gauge.py');
     const text = fs.readFileSync(path.resolve(__dirname, '..', 'rules', 'unconstrained-std', 'cases', 'flagged-basic.py'), 'utf8');
-    const { PythonDocument } = await import('../server/src/parse/document');
     const first = PythonDocument.parse(parser, text, true);
     const workspace = new Workspace(root, () => parser);
     workspace.setFile({ path: 'gauge.py', absPath, text, parsed: first.syntax });

@@ -2,6 +2,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { byteToUtf16Offset, codePointsBetween, LineIndex, utf16ToByteOffset } from '../server/src/parse/positions';
+import { firstAtLeast } from '../server/src/parse/sorted';
 
 describe('LineIndex on ASCII text', () => {
   const text = 'import torch\nsigma = 0.1\n';
@@ -162,8 +163,7 @@ describe('LineIndex.of', () => {
 });
 
 describe('firstAtLeast', () => {
-  it('finds the first position whose value is at least the one asked for', async () => {
-    const { firstAtLeast } = await import('../server/src/parse/sorted');
+  it('finds the first position whose value is at least the one asked for', () => {
     fc.assert(
       fc.property(fc.array(fc.integer({ min: -50, max: 50 })), fc.integer({ min: -60, max: 60 }), (values, x) => {
         const sorted = [...values].sort((p, q) => p - q);
